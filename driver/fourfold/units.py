@@ -1,0 +1,74 @@
+"""CODATA 2018 constants and the only unit conversions in fourfold.
+
+Values: CODATA 2018 (E. Tiesinga, P. J. Mohr, D. B. Newell, B. N. Taylor, Rev. Mod. Phys. 93, 025010, 2021),
+as bundled in SciPy's ``_codata.txt2018``. PySCF's ``pyscf.data.nist`` uses older sets (CODATA 2010/2014),
+so conversions are never taken from there.
+"""
+
+HARTREE_EV = 27.211386245988
+HARTREE_CM = 219474.63136320
+HARTREE_JOULE = 4.3597447222071e-18
+AVOGADRO_PER_MOL = 6.02214076e23
+BOHR_ANGSTROM = 0.529177210903
+CAL_JOULE = 4.184  # thermochemical calorie
+
+HARTREE_KJ_MOL = HARTREE_JOULE * AVOGADRO_PER_MOL / 1000.0
+HARTREE_KCAL_MOL = HARTREE_KJ_MOL / CAL_JOULE
+
+# energy unit name -> size of one hartree in that unit
+_PER_HARTREE = {
+    "hartree": 1.0,
+    "kj_mol": HARTREE_KJ_MOL,
+    "kcal_mol": HARTREE_KCAL_MOL,
+    "ev": HARTREE_EV,
+    "cm": HARTREE_CM,
+}
+
+# names a user may type -> canonical unit name
+UNIT_ALIASES = {
+    "hartree": "hartree", "eh": "hartree", "au": "hartree",
+    "kj": "kj_mol", "kj_mol": "kj_mol", "kj/mol": "kj_mol",
+    "kcal": "kcal_mol", "kcal_mol": "kcal_mol", "kcal/mol": "kcal_mol",
+    "ev": "ev",
+    "cm": "cm", "cm-1": "cm", "cm^-1": "cm", "wavenumber": "cm",
+}
+
+UNIT_LABELS = {
+    "hartree": "Eh", "kj_mol": "kJ/mol", "kcal_mol": "kcal/mol", "ev": "eV", "cm": "cm⁻¹",
+}
+
+
+def canonical_unit(name: str) -> str:
+    """Canonical energy-unit name for a user-typed one; InputError lists the valid names."""
+    from .errors import InputError
+
+    key = name.strip().lower()
+    if key not in UNIT_ALIASES:
+        raise InputError(f"unknown energy unit '{name}': use one of kj, kcal, ev, cm, hartree")
+    return UNIT_ALIASES[key]
+
+
+def convert_energy(value, from_unit: str, to_unit: str):
+    """Convert an energy (scalar or numpy array) between any two units named in UNIT_ALIASES."""
+    src, dst = canonical_unit(from_unit), canonical_unit(to_unit)
+    return value * (_PER_HARTREE[dst] / _PER_HARTREE[src])
+
+
+def hartree_to_kj_mol(energy_hartree):
+    return energy_hartree * HARTREE_KJ_MOL
+
+
+def cm_to_kj_mol(energy_cm):
+    return energy_cm * (HARTREE_KJ_MOL / HARTREE_CM)
+
+
+def kj_mol_to_cm(energy_kj_mol):
+    return energy_kj_mol * (HARTREE_CM / HARTREE_KJ_MOL)
+
+
+def bohr_to_angstrom(distance_bohr):
+    return distance_bohr * BOHR_ANGSTROM
+
+
+def angstrom_to_bohr(distance_angstrom):
+    return distance_angstrom / BOHR_ANGSTROM
