@@ -1,0 +1,251 @@
+"""Relaxation with geomeTRIC driven by any potential callable.
+
+A potential is ``positions_angstrom (N, 3) -> (energy_hartree, gradient_hartree_per_bohr (N, 3))``.
+
+Two kinds (DESIGN.md, "Chemistry decisions"):
+
+* ``held`` keeps the L–M–L arrangement of the start geometry: every L–M–L angle that is not near
+  linear is frozen, and for SP-4 two dihedrals keep the donors and the metal in one plane. Angles
+  near 180° are never constrained (the angle coordinate is ill-defined there). In a square,
+  out-of-plane motions change the cis angles only to second order, hence the plane dihedrals.
+  Bond lengths and the ligands' own internal coordinates relax.
+* ``free`` is unconstrained. It starts from the given geometry displaced by a small fixed
+  pseudo-random amount (``FREE_NUDGE_ANGSTROM``, same for every run): from an exactly symmetric start
+  the gradient keeps the symmetry, and a free relaxation of an ideal square would stay on the
+  square saddle point instead of showing where the state goes (measured: free SP-4 [NiCl4]2-
+  triplet from the ideal square ends with tau4 = 0.000).
+
+geomeTRIC's log goes to ``log_path`` (or nowhere) and its scratch files to a temporary directory.
+"""
+
+from __future__ import annotations
+
+import logging
+import tempfile
+from collections.abc import Callable, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+from itertools import combinations
+
+import numpy as np
+from geometric.engine import Engine
+from geometric.errors import Error as GeometricError
+from geometric.errors import GeomOptNotConvergedError
+from geometric.internal import DelocalizedInternalCoordinates
+from geometric.molecule import Molecule
+from geometric.nifty import RawFileHandler
+from geometric.optimize import Optimizer
+from geometric.params import OptParams
+from geometric.prepare import parse_constraints
+
+from ..errors import ComputeError, InputError, NotConverged
+from ..geometry.polyhedra import ARRANGEMENTS
+from ..units import angstrom_to_bohr, bohr_to_angstrom
+
+Potential = Callable[[np.ndarray], tuple[float, np.ndarray]]
+
+KINDS = ("held", "free")
+
+# Above this an L–M–L angle counts as trans (linear): it is not constrained.
+LINEAR_ANGLE_DEG = 150.0
+# How many trans L–M–L angles each ideal arrangement has (SS-4: both seesaw definitions have one).
+_TRANS_ANGLES = {"T-4": 0, "SP-4": 2, "SS-4": 1, "vTBPY-4": 0}
+
+# Largest Cartesian displacement of the free-relaxation start; fixed seed, so runs are reproducible.
+FREE_NUDGE_ANGSTROM = 0.02
+_NUDGE_SEED = 4
+
+# fourfold's convergence names -> geomeTRIC convergence sets.
+CONVERGENCE_SETS = {"default": "GAU", "loose": "GAU_LOOSE", "tight": "GAU_TIGHT"}
+
+
+@dataclass
+class RelaxResult:
+    """Outcome of one relaxation (plain data)."""
+
+    atoms: object  # ase.Atoms at the last accepted geometry
+    energy_hartree: float
+    converged: bool
+    steps: int
+    gradient_calls: int
+    kind: str
+    message: str
+
+
+class RelaxInterrupted(NotConverged):
+    """The potential failed (e.g. SCF not converged) during a relaxation.
+
+    ``last_atoms`` is the last geometry whose energy and gradient were computed (the start geometry
+    if the first call failed): a retry with stronger SCF settings starts from there.
+    """
+
+    def __init__(self, message: str, last_atoms, step: int):
+        super().__init__(message)
+        self.last_atoms = last_atoms
+        self.step = step
+
+
+def _angle_deg(positions, metal_index: int, i: int, j: int) -> float:
+    a = positions[i] - positions[metal_index]
+    b = positions[j] - positions[metal_index]
+    cosine = np.dot(a, b) / (np.linalg.norm(a) * np.linalg.norm(b))
+    return float(np.degrees(np.arccos(np.clip(cosine, -1.0, 1.0))))
+
+
+def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
+                     donor_indices: Sequence[int]) -> str:
+    """geomeTRIC ``$freeze`` block that keeps the start geometry's L–M–L arrangement.
+
+    InputError when the start geometry's count of near-linear L–M–L angles does not match the
+    arrangement (wrong donor indices or a start geometry of another shape).
+    """
+    if arrangement not in ARRANGEMENTS:
+        raise InputError(f"unknown arrangement '{arrangement}': use one of {', '.join(ARRANGEMENTS)}")
+    positions = np.asarray(positions_angstrom, dtype=float).reshape(-1, 3)
+    donors = [int(d) for d in donor_indices]
+    if len(donors) != 4 or len(set(donors)) != 4 or metal_index in donors:
+        raise InputError(f"need four distinct donor indices other than the metal, got {donors}")
+    pairs = list(combinations(donors, 2))
+    trans = [p for p in pairs if _angle_deg(positions, metal_index, *p) > LINEAR_ANGLE_DEG]
+    if len(trans) != _TRANS_ANGLES[arrangement]:
+        raise InputError(
+            f"start geometry does not look {arrangement}: {len(trans)} L–M–L angles above "
+            f"{LINEAR_ANGLE_DEG:.0f}°, expected {_TRANS_ANGLES[arrangement]} (check donor indices)"
+        )
+    # geomeTRIC numbers atoms from 1.
+    m = metal_index + 1
+    lines = ["$freeze"]
+    lines += [f"angle {i + 1} {m} {j + 1}" for i, j in pairs if (i, j) not in trans]
+    if arrangement == "SP-4":
+        (a, c), (b, d) = trans
+        if len({a, b, c, d}) != 4:
+            raise InputError("start geometry does not look SP-4: its two trans angles share a donor")
+        # Ring a-b-c-d: the donors' plane, and the metal in it.
+        lines.append(f"dihedral {a + 1} {b + 1} {c + 1} {d + 1}")
+        lines.append(f"dihedral {a + 1} {b + 1} {c + 1} {m}")
+    return "\n".join(lines) + "\n"
+
+
+class _PotentialEngine(Engine):
+    """geomeTRIC engine that evaluates a fourfold potential and counts the calls."""
+
+    def __init__(self, molecule, potential: Potential, numpy_errors: dict):
+        super().__init__(molecule)
+        self.potential = potential
+        self.numpy_errors = numpy_errors
+        self.calls = 0
+        self.last_good_positions_angstrom = None
+
+    def calc_new(self, coords, dirname):
+        positions_angstrom = bohr_to_angstrom(np.asarray(coords, dtype=float).reshape(-1, 3))
+        # The potential runs under the caller's numpy error settings, not geomeTRIC's.
+        with np.errstate(**self.numpy_errors):
+            energy_hartree, gradient_hartree_per_bohr = self.potential(positions_angstrom)
+        self.calls += 1
+        self.last_good_positions_angstrom = positions_angstrom
+        return {"energy": float(energy_hartree),
+                "gradient": np.asarray(gradient_hartree_per_bohr, dtype=float).ravel()}
+
+
+@contextmanager
+def _geometric_log(log_path):
+    """Route geomeTRIC's logger to log_path (or discard it) and never to the terminal."""
+    geo_logger = logging.getLogger("geometric")
+    saved = (geo_logger.handlers[:], geo_logger.propagate)
+    handler = RawFileHandler(str(log_path), mode="a") if log_path else logging.NullHandler()
+    geo_logger.handlers = [handler]
+    geo_logger.propagate = False
+    try:
+        yield
+    finally:
+        handler.close()
+        geo_logger.handlers, geo_logger.propagate = saved
+
+
+def _nudged(positions_angstrom: np.ndarray) -> np.ndarray:
+    rng = np.random.default_rng(_NUDGE_SEED)
+    return positions_angstrom + rng.uniform(-FREE_NUDGE_ANGSTROM, FREE_NUDGE_ANGSTROM,
+                                            positions_angstrom.shape)
+
+
+def _atoms_at(atoms, positions_angstrom):
+    out = atoms.copy()
+    out.calc = None
+    out.set_positions(positions_angstrom)
+    return out
+
+
+def _internal_coordinates(molecule, kind: str, arrangement: str, metal_index: int,
+                          donor_indices: Sequence[int]):
+    """TRIC coordinates (geomeTRIC's default), with the held constraints built in for ``held``."""
+    constraints, constraint_values = None, None
+    if kind == "held":
+        text = held_constraints(molecule.xyzs[0], arrangement, metal_index, donor_indices)
+        constraints, constraint_values = parse_constraints(molecule, text)
+    return DelocalizedInternalCoordinates(
+        molecule, build=True, connect=False, addcart=False, constraints=constraints,
+        cvals=constraint_values[0] if constraint_values else None,
+    )
+
+
+def relax(atoms, potential: Potential, kind: str, arrangement: str, metal_index: int = 0,
+          donor_indices: Sequence[int] = (1, 2, 3, 4), max_steps: int = 100,
+          convergence: str = "default", log_path=None) -> RelaxResult:
+    """Relax ``atoms`` on ``potential``: ``held`` keeps the L–M–L arrangement, ``free`` does not.
+
+    Ends after at most ``max_steps`` optimisation steps; an unconverged end is a result
+    (converged=False), not an error. A potential raising NotConverged makes this raise
+    RelaxInterrupted (a NotConverged) naming the step, with the last good geometry attached.
+    """
+    if kind not in KINDS:
+        raise InputError(f"unknown relaxation kind '{kind}': use held or free")
+    if arrangement not in ARRANGEMENTS:
+        raise InputError(f"unknown arrangement '{arrangement}': use one of {', '.join(ARRANGEMENTS)}")
+    if convergence not in CONVERGENCE_SETS:
+        raise InputError(f"unknown convergence '{convergence}': use one of {', '.join(CONVERGENCE_SETS)}")
+    if max_steps < 1:
+        raise InputError(f"max_steps must be at least 1, got {max_steps}")
+
+    start_angstrom = np.asarray(atoms.get_positions(), dtype=float)
+    if kind == "free":
+        start_angstrom = _nudged(start_angstrom)
+    molecule = Molecule()
+    molecule.elem = list(atoms.get_chemical_symbols())
+    molecule.xyzs = [start_angstrom.copy()]
+    engine = _PotentialEngine(molecule, potential, np.geterr())
+
+    # geomeTRIC divides by zero-valued eigenvalues of planar fragments on purpose (internal.py,
+    # rotation regularisation); those numpy warnings are noise on the terminal.
+    with (tempfile.TemporaryDirectory(prefix="fourfold-relax-") as scratch, _geometric_log(log_path),
+          np.errstate(divide="ignore", invalid="ignore")):
+        coordinates = _internal_coordinates(engine.M, kind, arrangement, metal_index, donor_indices)
+        params = OptParams(maxiter=max_steps, convergence_set=CONVERGENCE_SETS[convergence])
+        optimizer = Optimizer(angstrom_to_bohr(start_angstrom).ravel(), engine.M, coordinates,
+                              engine, scratch, params, print_info=False)
+        try:
+            optimizer.optimizeGeometry()
+            converged, message = True, f"converged in {optimizer.Iteration} steps"
+        except GeomOptNotConvergedError:
+            converged = False
+            message = f"not converged after {optimizer.Iteration} steps (max_steps={max_steps})"
+        except NotConverged as err:
+            last = engine.last_good_positions_angstrom
+            last_atoms = _atoms_at(atoms, start_angstrom if last is None else last)
+            raise RelaxInterrupted(
+                f"{kind} relaxation interrupted at step {optimizer.Iteration} "
+                f"(gradient call {engine.calls + 1}): {err}", last_atoms, optimizer.Iteration,
+            ) from err
+        except GeometricError as err:
+            first_line = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+            raise ComputeError(f"geomeTRIC failed in a {kind} relaxation: {first_line}") from err
+
+    final_angstrom = bohr_to_angstrom(np.asarray(optimizer.X, dtype=float).reshape(-1, 3))
+    return RelaxResult(
+        atoms=_atoms_at(atoms, final_angstrom),
+        energy_hartree=float(optimizer.E),
+        converged=converged,
+        steps=int(optimizer.Iteration),
+        gradient_calls=int(engine.calls),
+        kind=kind,
+        message=message,
+    )
