@@ -70,15 +70,29 @@ def test_trigonal_pyramid_is_axially_vacant_tbp():
         assert angle == pytest.approx(90.0 if i == 0 else 120.0, abs=1e-10)
 
 
+def _turned_45_about_z(vectors):
+    c = s = math.sqrt(0.5)
+    return vectors @ np.array([[c, s, 0.0], [-s, c, 0.0], [0.0, 0.0, 1.0]])
+
+
 def test_d2d_path_end_points_are_t4_and_sp4():
-    # D2d flattening runs from Td (2φ = θ) to the square (2φ = 180°): REFERENCES.md §1a/§1b [C]
-    np.testing.assert_allclose(d2d_path(TETRAHEDRAL_DEG), unit_vectors("T-4"), atol=1e-8)
+    # D2d flattening runs from Td (2φ = θ) to the square (2φ = 180°): REFERENCES.md §1a/§1b [C];
+    # T-4 itself sits in the cube frame (textbook e = z², x²−y²), i.e. the path's start turned 45° about z.
+    np.testing.assert_allclose(_turned_45_about_z(d2d_path(TETRAHEDRAL_DEG)), unit_vectors("T-4"), atol=1e-8)
     np.testing.assert_allclose(d2d_path(180.0), unit_vectors("SP-4"), atol=1e-12)
+
+
+def test_t4_is_on_alternate_cube_corners():
+    # The tetrahedron inscribed in a cube, vertices (±1,±1,±1)/√3 with an even number of minus signs:
+    # the frame of textbook crystal-field diagrams [common practice, no source]
+    vectors = unit_vectors("T-4") * math.sqrt(3.0)
+    np.testing.assert_allclose(np.abs(vectors), 1.0, atol=1e-12)
+    assert np.all(np.prod(vectors, axis=1) > 0)
 
 
 def test_t4_as_printed_to_four_decimals_is_on_the_path():
     # 109.4712° is how the T-4 angle is usually printed, REFERENCES.md §1a [V]
-    np.testing.assert_allclose(d2d_path(109.4712), unit_vectors("T-4"), atol=1e-6)
+    np.testing.assert_allclose(_turned_45_about_z(d2d_path(109.4712)), unit_vectors("T-4"), atol=1e-6)
 
 
 @pytest.mark.parametrize("trans_deg", [115.0, 120.0, 135.0, 150.0, 170.0])

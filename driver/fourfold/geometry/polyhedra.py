@@ -49,8 +49,14 @@ def _trigonal_pyramid() -> np.ndarray:
     return np.vstack([[0.0, 0.0, 1.0], equatorial])
 
 
+def _cube_tetrahedron() -> np.ndarray:
+    # Alternate corners of a cube, (1,1,1)/√3 and its C2 images: the textbook frame in which the e set is
+    # (z², x²−y²) and t2 is (xy, xz, yz). It is d2d_path(θ) turned 45° about z (same site order).
+    return np.array([[1.0, 1.0, 1.0], [-1.0, 1.0, -1.0], [-1.0, -1.0, 1.0], [1.0, -1.0, -1.0]]) / np.sqrt(3.0)
+
+
 _UNIT_VECTORS = {
-    "T-4": d2d_path(TETRAHEDRAL_ANGLE_DEG),
+    "T-4": _cube_tetrahedron(),
     "SP-4": np.array([[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [-1.0, 0.0, 0.0], [0.0, -1.0, 0.0]]),
     "SS-4": _seesaw(),
     "vTBPY-4": _trigonal_pyramid(),
@@ -60,7 +66,8 @@ _UNIT_VECTORS = {
 def unit_vectors(arrangement: str) -> np.ndarray:
     """Unit vectors (4, 3) from the metal at the origin to the four donors of an ideal arrangement.
 
-    - ``T-4``: regular tetrahedron, the 109.47° end of ``d2d_path``.
+    - ``T-4``: regular tetrahedron on alternate cube corners (textbook frame: e = z², x²−y²); the
+      109.47° end of ``d2d_path`` turned by 45° about z.
     - ``SP-4``: square on +x, +y, −x, −y; trans pairs (0, 2) and (1, 3), neighbours are cis.
     - ``SS-4``: the seesaw taken as the cis-divacant octahedron: ligands 0/2 trans on ±z (180°), ligands
       1/3 on +x/+y, 90° to each other and to the axis; angles (β, α) = (180°, 90°), tau4 0.638. "Seesaw" is

@@ -114,7 +114,7 @@ def _permutations(n: int) -> np.ndarray:
     return perms
 
 
-def _cshm_batch(points: np.ndarray, references: np.ndarray) -> np.ndarray:
+def _cshm_batch(points: np.ndarray, references: np.ndarray, centre_fixed: bool = False) -> np.ndarray:
     """S(points | reference) for each of the references (M, N, 3); points (N, 3) validated, N >= 1.
 
     For a fixed pairing, the best translation puts both centroids together, the best proper rotation gives
@@ -129,6 +129,8 @@ def _cshm_batch(points: np.ndarray, references: np.ndarray) -> np.ndarray:
     p = references - references.mean(axis=1, keepdims=True)
     p_norm2 = np.einsum("mij,mij->m", p, p)
     perms = _permutations(points.shape[0])
+    if centre_fixed:  # the metal (vertex 0) pairs with the reference centre, as in the centred CShM
+        perms = perms[perms[:, 0] == 0]
     # covariance[m, k] = Σ_n p[m, perm_k(n)] q[n]^T: reference vertex perm_k(n) is paired with point n.
     covariance = np.swapaxes(p[:, perms], -1, -2) @ q
     singular = np.linalg.svd(covariance, compute_uv=False)
@@ -158,7 +160,7 @@ def cshm(points, reference) -> float:
 
 
 def _shape_measures(metal: np.ndarray, donors: np.ndarray) -> dict[str, float]:
-    values = _cshm_batch(np.vstack([metal, donors]), _CENTRED_REFERENCES)
+    values = _cshm_batch(np.vstack([metal, donors]), _CENTRED_REFERENCES, centre_fixed=True)
     return {name: float(value) for name, value in zip(ARRANGEMENTS, values)}
 
 
