@@ -87,5 +87,126 @@ def build(formula, arrangements, out_dir, as_json):
         click.echo(structures_text(cx, rows))
 
 
+def _progress_printer(quiet: bool):
+    """A rich progress bar on stderr (jobs done/failed/remaining, elapsed, time left), or nothing."""
+    if quiet:
+        return None, None
+    from rich.console import Console
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+
+    progress = Progress(TextColumn("[bold]{task.description}"), BarColumn(), MofNCompleteColumn(),
+                        TextColumn("{task.fields[counts]}"), TimeElapsedColumn(), TextColumn("left"),
+                        TimeRemainingColumn(), console=Console(stderr=True), transient=False)
+    task = progress.add_task("jobs", total=None, counts="")
+
+    def update(summary, running):
+        progress.update(task, total=summary.total, completed=summary.done + summary.failed,
+                        counts=f"done {summary.done} · failed {summary.failed} · running {len(running)}")
+
+    return progress, update
+
+
+def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_json, timeout_s=None):
+    from .report.text import run_summary_text
+    from .study.runner import run_study
+
+    progress, update = _progress_printer(quiet or as_json)
+    if progress:
+        with progress:
+            summary = run_study(study, out_dir, workers=workers, threads=threads, retry_failed=retry_failed,
+                                timeout_s=timeout_s, progress=update)
+    else:
+        summary = run_study(study, out_dir, workers=workers, threads=threads, retry_failed=retry_failed,
+                            timeout_s=timeout_s)
+    from .report.comparison import comparison_for_folder
+
+    comparison = comparison_for_folder(out_dir, study)
+    if as_json:
+        click.echo(json.dumps(comparison.as_dict(), indent=2, ensure_ascii=False))
+    else:
+        click.echo(comparison.text())
+        click.echo(run_summary_text(summary, out_dir))
+    return summary
+
+
+_RUN_OPTIONS = [
+    click.option("--out", "out_dir", type=click.Path(file_okay=False), default=None,
+                 help="Study folder (default outputs/<recipe name>)."),
+    click.option("--workers", type=int, default=2, show_default=True,
+                 help="Jobs run side by side, each in its own process."),
+    click.option("--threads", type=int, default=1, show_default=True, help="Threads per job."),
+    click.option("--retry-failed", is_flag=True, help="Run again the jobs that failed before."),
+    click.option("--timeout", "timeout_s", type=float, default=None,
+                 help="Per-job time limit in seconds (default: recipe [run] timeout_s, else 3600)."),
+    click.option("--quiet", is_flag=True, help="No progress bar (for cron or batch systems)."),
+    click.option("--json", "as_json", is_flag=True, help="Print the comparison as JSON."),
+]
+
+
+def _with_run_options(function):
+    for option in reversed(_RUN_OPTIONS):
+        function = option(function)
+    return function
+
+
+@main.command()
+@click.argument("recipe", required=False, type=click.Path(dir_okay=False))
+@click.option("--formula", help="Run one complex without a recipe, e.g. '[NiCl4]2-'.")
+@click.option("--level", default="screen", show_default=True, help="Level for --formula: screen, quick or standard.")
+@_with_run_options
+def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json):
+    """Run the study in RECIPE (a .toml file), or every state of one --formula; then print the comparison.
+
+    Rerunning the same command resumes: finished jobs are never recomputed."""
+    from pathlib import Path
+
+    from .study.recipe import load_recipe, recipe_for_formula
+
+    if bool(recipe) == bool(formula):
+        raise InputError("give either a RECIPE file or --formula FORMULA (with --level), not both or neither")
+    study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
+    default_name = Path(recipe).stem if recipe else _folder_name(study.complexes[0].complex.formula, level)
+    _run_and_report(study, out_dir or Path("outputs") / default_name, workers, threads, retry_failed, quiet,
+                    as_json, timeout_s)
+
+
+def _folder_name(formula: str, level: str) -> str:
+    import re
+
+    return re.sub(r"[^A-Za-z0-9+\-]", "", formula) + f"_{level}"
+
+
+@main.command()
+@_with_run_options
+def demo(out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json):
+    """Run the bundled demo study (four nickel(II) complexes at the quick level) into outputs/demo."""
+    from importlib import resources
+    from pathlib import Path
+
+    from .study.recipe import parse_recipe
+
+    text = resources.files("fourfold").joinpath("recipes/demo.toml").read_text(encoding="utf-8")
+    study = parse_recipe(text, "demo.toml")
+    click.echo("Demo: choosing a nickel(II) precursor. Nickel salts, cyanides and phosphines are hazardous; follow "
+               "local rules and the safety data sheets. A computed preference does not replace experiment.", err=True)
+    _run_and_report(study, out_dir or Path("outputs") / "demo", workers, threads, retry_failed, quiet, as_json,
+                    timeout_s)
+
+
+@main.command()
+@click.argument("folder", type=click.Path(file_okay=False, exists=True))
+@click.option("--json", "as_json", is_flag=True, help="Print the counts as JSON.")
+def status(folder, as_json):
+    """Done / failed / pending jobs of a study FOLDER, with the failures' one-line reasons."""
+    from .report.text import status_text
+    from .study.status import folder_status
+
+    found = folder_status(folder)
+    if as_json:
+        click.echo(json.dumps(found, indent=2, ensure_ascii=False))
+    else:
+        click.echo(status_text(found))
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

@@ -72,3 +72,62 @@ def structures_text(cx, rows: list[dict]) -> str:
     body = [[r["arrangement"], r["isomer"] or "—", f"{r['tau4']:.3f}", f"{r['tau4_prime']:.3f}",
              f"{r['nearest_shape']} ({r['shape_measures'][r['nearest_shape']]:.2f})", r["file"]] for r in rows]
     return f"Ideal structures of {cx.formula} (d{cx.d_electrons}, charge {cx.charge:+d})\n\n" + _table(headers, body, right={2, 3})
+
+
+def _number(value, digits=1, empty="—"):
+    return empty if value is None else f"{value:.{digits}f}"
+
+
+def comparison_text(comparison) -> str:
+    """Per complex: every state with computed and estimated relative energies, then the verdicts."""
+    out = [f"{comparison.title} — level {comparison.level}", ""]
+    for c in comparison.complexes:
+        out.append(f"{c.formula}  (d{c.d_electrons})")
+        headers = ["state", "spin", "relax", "ΔE calc / kJ mol⁻¹", "ΔE est / kJ mol⁻¹", "tau4", "shape", "⟨S²⟩",
+                   "conv", "note"]
+        rows = []
+        order = {"T-4": 0, "SP-4": 1, "SS-4": 2, "vTBPY-4": 3}
+        for r in sorted(c.records, key=lambda r: (order.get(r.arrangement, 9), r.isomer, r.spin2s, r.kind)):
+            note = ""
+            if r.status != "done":
+                note = r.status if not r.reason else f"{r.status}: {r.reason}"
+            elif r.broken_symmetry:
+                note = "broken-symmetry singlet"
+            elif r.spin_contaminated:
+                note = "spin contaminated"
+            s2 = "—" if r.s2 is None else f"{r.s2:.2f}"
+            rows.append([r.name, spin_label(r.spin2s), r.kind, _number(r.relative_kj_mol), _number(r.estimate_kj_mol),
+                         _number(r.tau4, 2), r.nearest_shape or "—", s2,
+                         "—" if r.converged is None else ("yes" if r.converged else "no"), note[:60]])
+        out.append(_table(headers, rows, right={3, 4, 5, 7}))
+        g, e = c.computed_ground, c.estimate.ground
+        calc = "—" if g is None else f"{g.name}, {spin_label(g.spin2s)}"
+        est = f"{_state_name(e.arrangement, e.isomer)}, {spin_label(e.spin2s)}"
+        verdict = "" if c.agrees() is None else ("  (agree)" if c.agrees() else "  (DISAGREE)")
+        out.append(f"ground state: computed {calc}; estimated {est}{verdict}")
+        calc_delta, est_delta = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
+        for spin2s in sorted(set(calc_delta) | set(est_delta)):
+            a, b = calc_delta.get(spin2s), est_delta.get(spin2s)
+            diff = "" if a is None or b is None else f", difference {a - b:+.1f}"
+            out.append(f"ΔE(SP-4 − T-4) {spin_label(spin2s)}: computed {_number(a)} kJ/mol, estimated {_number(b)} kJ/mol{diff}")
+        out.append("")
+    for warning in comparison.warnings:
+        out.append(f"note: {warning}")
+    return "\n".join(out).rstrip() + "\n"
+
+
+def run_summary_text(summary, out_dir) -> str:
+    line = (f"{summary.total} jobs: {summary.done} done, {summary.failed} failed "
+            f"({summary.ran} run now, {summary.skipped} already in the store) in {summary.wall_seconds:.0f} s; "
+            f"results in {out_dir}")
+    if summary.failures:
+        line += f"\nfailed: " + "; ".join(f"{label} — {reason}" for label, reason in summary.failures[:10])
+    return line
+
+
+def status_text(found: dict) -> str:
+    lines = [f"{found['folder']}: {found['title']} (level {found['level']})",
+             f"{found['total']} jobs: {found['done']} done, {found['failed']} failed, {found['pending']} pending"]
+    for failure in found["failures"]:
+        lines.append(f"  failed: {failure['label']} [{failure['task']}] — {failure['reason']}")
+    return "\n".join(lines)

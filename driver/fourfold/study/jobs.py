@@ -1,0 +1,175 @@
+"""A study expanded into jobs, each with a stable key.
+
+A job is one calculation: (complex, arrangement, isomer, 2S, engine settings, task). Its key is the SHA-256
+of its canonical JSON (sorted keys; start coordinates rounded to 1e-6 Å where they are inputs; the parent
+job's key where the start comes from another job; the versions of fourfold, PySCF, tblite, geomeTRIC).
+Same inputs give the same key; any change of settings gives a new one. Jobs of different levels that do the
+same work (the GFN2-xTB relaxation under a `quick` single point is the `screen` result) share a key.
+
+Chains per state and relaxation kind:
+  screen    relax (xTB)
+  quick     relax (xTB) → single-point (DFT)
+  standard  relax-held (xTB, pre-relax) → relax (DFT) → single-point (DFT, larger basis) when asked
+Path points (recipe `path_points = N`): held xTB relaxations along the D2d path, plus a DFT single point
+at `quick` and `standard`.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+from functools import cache
+from importlib import metadata
+
+import numpy as np
+
+from ..chem.complex import Complex
+from ..geometry.builder import build, build_path_point
+from ..geometry.isomers import isomers
+from ..geometry.polyhedra import TETRAHEDRAL_ANGLE_DEG
+
+TASKS = ("relax-held", "relax-free", "single-point", "path-point")
+_VERSIONED = ("fourfold", "pyscf", "tblite", "geometric")
+
+
+@cache
+def code_versions() -> dict[str, str]:
+    versions = {}
+    for name in _VERSIONED:
+        try:
+            versions[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            versions[name] = "absent"
+    return versions
+
+
+@dataclass(frozen=True)
+class Job:
+    key: str
+    task: str
+    spec: dict  # everything the worker needs, plain JSON data
+    parent: str | None
+    final: bool  # its energy is the one the comparison uses for its state
+    label: str = field(compare=False)
+
+    @property
+    def state(self) -> tuple:
+        s = self.spec
+        return (s["formula"], s["arrangement"], s["isomer"], s["spin2s"], s["kind"], s.get("trans_angle_deg"))
+
+
+def complex_spec(cx: Complex) -> dict:
+    """Plain-data description of a complex, enough to rebuild it in a worker (custom ligands included)."""
+    from ..chem.ligands import bundled_ligands
+
+    bundled = bundled_ligands()
+    custom = {}
+    for lig in cx.ligands:
+        if lig.name not in bundled or bundled[lig.name] != lig:
+            custom[lig.name] = {
+                "symbols": list(lig.symbols), "positions_angstrom": np.round(lig.positions_angstrom, 6).tolist(),
+                "charge": lig.charge, "label": lig.label, "distance_angstrom": lig.distance_angstrom,
+                "f": lig.f.value, "pi_ratio": lig.pi_ratio.value, "h": lig.h.value, "repulsion_cm": lig.repulsion_cm.value,
+            }
+    return {"metal": cx.metal.symbol, "oxidation_state": cx.oxidation_state,
+            "ligands": [lig.name for lig in cx.ligands], "custom_ligands": custom}
+
+
+def job_key(payload: dict) -> str:
+    text = json.dumps({**payload, "versions": code_versions()}, sort_keys=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _rounded_positions(atoms) -> list:
+    return np.round(atoms.get_positions(), 6).tolist()
+
+
+def path_angles_deg(points: int) -> list[float]:
+    """`points` trans angles from T-4 (109.47°) to SP-4 (180°), evenly spaced."""
+    return [float(a) for a in np.linspace(TETRAHEDRAL_ANGLE_DEG, 180.0, points)]
+
+
+class _Builder:
+    """Collects jobs, deduplicating by key (two chains may share a first step)."""
+
+    def __init__(self):
+        self.jobs: dict[str, Job] = {}
+
+    def add(self, task: str, spec: dict, parent: str | None, start_positions: list | None, final: bool, label: str) -> str:
+        payload = {"task": task, "spec": spec, "parent": parent, "start": start_positions}
+        key = job_key(payload)
+        if key in self.jobs:
+            if final and not self.jobs[key].final:
+                self.jobs[key] = Job(key, task, spec, parent, True, label)
+        else:
+            self.jobs[key] = Job(key, task, spec, parent, final, label)
+        return key
+
+
+def geometry_engine(level) -> dict:
+    """Engine settings of the GFN2-xTB relaxations (screen level, pre-relaxer, quick geometries)."""
+    return {"method": "xtb", "solvent": level.solvent, "spin_polarization": True}
+
+
+def _dft_engine(level, basis: str) -> dict:
+    # Only what changes the numbers goes into the key: the preset's name and the chaining fields do not.
+    from dataclasses import replace
+
+    return replace(level, name=level.method, basis=basis, geometry_from="self", single_point_basis=None).to_dict()
+
+
+def relax_engine(level) -> dict:
+    return _dft_engine(level, level.basis)
+
+
+def single_point_engine(level) -> dict:
+    return _dft_engine(level, level.single_point_basis or level.basis)
+
+
+def _state_chain(builder: _Builder, level, base: dict, atoms, kind: str, label: str, path: bool) -> None:
+    xtb_engine = geometry_engine(level)
+    relax_task = "path-point" if path else f"relax-{kind}"
+    if level.method == "xtb":
+        builder.add(relax_task, {**base, "engine": xtb_engine}, None, _rounded_positions(atoms), True, label)
+        return
+    if level.geometry_from == "xtb" or path:
+        geometry = builder.add(relax_task, {**base, "engine": xtb_engine}, None, _rounded_positions(atoms), False, label)
+        builder.add("single-point", {**base, "engine": single_point_engine(level)}, geometry, None, True, label)
+        return
+    pre = builder.add(relax_task if kind == "held" else "relax-held",
+                      {**base, "kind": "held", "engine": xtb_engine}, None, _rounded_positions(atoms), False, label)
+    has_sp = level.single_point_basis is not None
+    dft = builder.add(relax_task, {**base, "engine": relax_engine(level)}, pre, None, not has_sp, label)
+    if has_sp:
+        builder.add("single-point", {**base, "engine": single_point_engine(level)}, dft, None, True, label)
+
+
+def expand(study) -> list[Job]:
+    """All jobs of a study, parents before children."""
+    builder = _Builder()
+    for entry in study.complexes:
+        cx = entry.complex
+        names = tuple(lig.name for lig in cx.ligands)
+        common = {"formula": cx.formula, "complex": complex_spec(cx), "charge": cx.charge}
+        for arrangement in entry.arrangements:
+            for isomer in isomers(names, arrangement):
+                atoms = build(cx, arrangement, isomer)
+                for spin2s in entry.spins:
+                    for kind in study.relaxations:
+                        base = {**common, "arrangement": arrangement, "isomer": isomer.label, "spin2s": spin2s,
+                                "kind": kind, "max_steps": study.run.get("max_steps", 100)}
+                        label = f"{cx.formula} {arrangement} {isomer.label} 2S={spin2s} {kind}".replace("  ", " ")
+                        _state_chain(builder, study.level, base, atoms, kind, label, path=False)
+        if study.path_points and "SP-4" in entry.arrangements:
+            sp_isomers = isomers(names, "SP-4")
+            for isomer in sp_isomers:
+                for angle in path_angles_deg(study.path_points):
+                    atoms = build_path_point(cx, angle, isomer.label)
+                    for spin2s in entry.spins:
+                        base = {**common, "arrangement": "path", "isomer": isomer.label, "spin2s": spin2s,
+                                "kind": "held", "trans_angle_deg": round(angle, 6),
+                                "max_steps": study.run.get("max_steps", 100)}
+                        label = f"{cx.formula} path {angle:.1f}° {isomer.label} 2S={spin2s}".replace("  ", " ")
+                        _state_chain(builder, study.level, base, atoms, "held", label, path=True)
+    return list(builder.jobs.values())

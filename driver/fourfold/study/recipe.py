@@ -1,0 +1,254 @@
+"""Recipes: TOML files that say what a study covers, validated before any calculation.
+
+Recipes are data only (read with tomllib): nothing in them is executed or unpickled. Every error names the
+file, the key and the fix, so a typo costs seconds, not a night.
+
+```toml
+title = "Choosing a nickel(II) precursor"
+level = "quick"                      # a preset name, or a [level] table for a custom level
+solvent = "dichloromethane"          # optional; omit for the gas phase
+arrangements = ["T-4", "SP-4"]       # default: T-4 and SP-4 (with its isomers)
+relaxations = ["held", "free"]       # held, free or both (default both)
+path_points = 0                      # > 1: held relaxations along the D2d path T-4 → SP-4
+
+[estimate]                           # optional ligand-field overrides for every complex
+"Cl.e_sigma" = 4200
+
+[ligands.MeCN]                       # optional custom ligands, usable in formulas by name
+xyz = "C 0 0 2.6\nC 0 0 1.14\nN 0 0 0"
+donor_index = 2
+charge = 0
+
+[[complex]]
+formula = "[NiCl4]2-"
+spins = [0, 2]                       # optional: default every allowed 2S
+estimate = { "Cl.e_sigma" = 4000 }   # optional per-complex overrides
+
+[[complex]]                          # explicit form
+metal = "Ni"
+oxidation_state = 2
+ligands = ["Cl", "Cl", "PMe3", "PMe3"]
+```
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..chem.complex import Complex, complex_explicit, complex_from_formula
+from ..chem.ligands import Ligand, custom_ligand
+from ..errors import InputError
+from ..geometry.polyhedra import ARRANGEMENTS
+
+RELAXATION_KINDS = ("held", "free")
+_TOP_KEYS = {"title", "level", "solvent", "arrangements", "relaxations", "path_points", "estimate", "ligands",
+             "complex", "run"}
+_COMPLEX_KEYS = {"formula", "metal", "oxidation_state", "ligands", "charge", "spins", "arrangements", "estimate", "name"}
+_LIGAND_KEYS = {"xyz", "donor_index", "charge", "f", "pi_ratio", "h", "repulsion_cm", "label", "distance_angstrom"}
+_RUN_KEYS = {"workers", "timeout_s", "max_steps", "threads"}
+
+
+@dataclass(frozen=True)
+class ComplexEntry:
+    complex: Complex
+    spins: tuple[int, ...]
+    arrangements: tuple[str, ...]
+    estimate_overrides: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Study:
+    title: str
+    level: object  # fourfold.compute.levels.Level
+    arrangements: tuple[str, ...]
+    relaxations: tuple[str, ...]
+    path_points: int
+    complexes: tuple[ComplexEntry, ...]
+    run: dict
+    source_path: str
+    source_text: str
+
+
+def _fail(path: str, where: str, message: str) -> InputError:
+    return InputError(f"{path}: {where}: {message}")
+
+
+def _expect(path, where, value, kind, what):
+    if not isinstance(value, kind) or (kind is int and isinstance(value, bool)):
+        raise _fail(path, where, f"must be {what}, got {value!r}")
+    return value
+
+
+def _unknown_keys(path, where, table: dict, allowed: set):
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        raise _fail(path, where, f"unknown key{'s' if len(unknown) > 1 else ''} {', '.join(map(repr, unknown))}; "
+                                 f"valid keys are {', '.join(sorted(allowed))}")
+
+
+def _arrangement_list(path, where, value) -> tuple[str, ...]:
+    _expect(path, where, value, list, "a list of arrangements such as [\"T-4\", \"SP-4\"]")
+    for item in value:
+        if item not in ARRANGEMENTS:
+            raise _fail(path, where, f"unknown arrangement {item!r}; use {', '.join(ARRANGEMENTS)}")
+    if not value:
+        raise _fail(path, where, "is empty; list at least one arrangement")
+    return tuple(dict.fromkeys(value))
+
+
+def _overrides(path, where, value) -> dict:
+    _expect(path, where, value, dict, "a table of KEY = number, e.g. \"Cl.e_sigma\" = 4000")
+    for key, number in value.items():
+        if not isinstance(number, (int, float)) or isinstance(number, bool):
+            raise _fail(path, f"{where}.{key}", f"must be a number, got {number!r}")
+    return {k: float(v) for k, v in value.items()}
+
+
+def _ligands(path, table) -> dict[str, Ligand]:
+    _expect(path, "ligands", table, dict, "a table of [ligands.NAME] tables")
+    found = {}
+    for name, spec in table.items():
+        where = f"ligands.{name}"
+        _expect(path, where, spec, dict, "a table with xyz, donor_index and charge")
+        _unknown_keys(path, where, spec, _LIGAND_KEYS)
+        for key in ("xyz", "donor_index", "charge"):
+            if key not in spec:
+                raise _fail(path, where, f"missing '{key}' (a custom ligand needs xyz, donor_index and charge)")
+        _expect(path, f"{where}.xyz", spec["xyz"], str, "an XYZ block as a string ('Symbol x y z' lines, Å)")
+        _expect(path, f"{where}.donor_index", spec["donor_index"], int, "an integer (0-based atom index)")
+        _expect(path, f"{where}.charge", spec["charge"], int, "an integer")
+        extra = {k: v for k, v in spec.items() if k not in ("xyz", "donor_index", "charge")}
+        try:
+            found[name] = custom_ligand(name, spec["xyz"], spec["donor_index"], spec["charge"], **extra)
+        except InputError as error:
+            raise _fail(path, where, str(error)) from None
+    return found
+
+
+def _complex_entry(path, index, spec, ligands, default_arrangements, global_overrides) -> ComplexEntry:
+    where = f"complex[{index}]"
+    _expect(path, where, spec, dict, "a [[complex]] table")
+    _unknown_keys(path, where, spec, _COMPLEX_KEYS)
+    try:
+        if "formula" in spec:
+            if "metal" in spec or "ligands" in spec:
+                raise InputError("give either formula or metal/oxidation_state/ligands, not both")
+            _expect(path, f"{where}.formula", spec["formula"], str, "a formula string such as \"[NiCl4]2-\"")
+            cx = complex_from_formula(spec["formula"], ligands)
+        elif "metal" in spec:
+            for key in ("oxidation_state", "ligands"):
+                if key not in spec:
+                    raise InputError(f"the explicit form needs metal, oxidation_state and ligands; '{key}' is missing")
+            _expect(path, f"{where}.oxidation_state", spec["oxidation_state"], int, "an integer")
+            _expect(path, f"{where}.ligands", spec["ligands"], list, "a list of four ligand names")
+            charge = spec.get("charge")
+            if charge is not None:
+                _expect(path, f"{where}.charge", charge, int, "an integer")
+            cx = complex_explicit(spec["metal"], spec["oxidation_state"], spec["ligands"], charge=charge,
+                                  custom_ligands=ligands)
+        else:
+            raise InputError("needs a formula (e.g. formula = \"[NiCl4]2-\") or metal/oxidation_state/ligands")
+        spins = cx.allowed_spin2s
+        if "spins" in spec:
+            _expect(path, f"{where}.spins", spec["spins"], list, "a list of 2S values, e.g. [0, 2]")
+            spins = tuple(cx.check_spin(_expect(path, f"{where}.spins", s, int, "an integer 2S")) for s in spec["spins"])
+    except InputError as error:
+        raise _fail(path, where, str(error)) from None
+    arrangements = (_arrangement_list(path, f"{where}.arrangements", spec["arrangements"])
+                    if "arrangements" in spec else default_arrangements)
+    overrides = dict(global_overrides)
+    if "estimate" in spec:
+        overrides.update(_overrides(path, f"{where}.estimate", spec["estimate"]))
+    try:
+        from ..field.estimate import parameters_for
+
+        parameters_for(cx, overrides)
+    except InputError as error:
+        raise _fail(path, f"{where}.estimate", str(error)) from None
+    return ComplexEntry(cx, spins, arrangements, overrides)
+
+
+def _level(path, value):
+    from ..compute.levels import custom_level, get_level
+
+    try:
+        if isinstance(value, str):
+            return get_level(value)
+        if isinstance(value, dict):
+            return custom_level(value)
+    except InputError as error:
+        raise _fail(path, "level", str(error)) from None
+    raise _fail(path, "level", f"must be a preset name (screen, quick, standard) or a [level] table, got {value!r}")
+
+
+def parse_recipe(text: str, path: str = "<recipe>") -> Study:
+    """Validate a recipe's text and return the Study it describes."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise InputError(f"{path}: not valid TOML ({error}); check quotes, brackets and '=' signs") from None
+    _unknown_keys(path, "top level", data, _TOP_KEYS)
+    title = _expect(path, "title", data.get("title", Path(path).stem), str, "a string")
+    arrangements = _arrangement_list(path, "arrangements", data.get("arrangements", ["T-4", "SP-4"]))
+    relaxations = data.get("relaxations", list(RELAXATION_KINDS))
+    _expect(path, "relaxations", relaxations, list, "a list: [\"held\"], [\"free\"] or [\"held\", \"free\"]")
+    if not relaxations or any(r not in RELAXATION_KINDS for r in relaxations):
+        raise _fail(path, "relaxations", f"use held, free or both, got {relaxations!r}")
+    path_points = _expect(path, "path_points", data.get("path_points", 0), int, "an integer (0 for no path)")
+    if path_points < 0 or path_points == 1:
+        raise _fail(path, "path_points", f"must be 0 (no path) or at least 2, got {path_points}")
+    level = _level(path, data.get("level", "quick"))
+    if "solvent" in data:
+        solvent = data["solvent"]
+        _expect(path, "solvent", solvent, str, "a solvent name, or leave it out for the gas phase")
+        try:
+            from dataclasses import replace
+
+            level = replace(level, solvent=None if solvent.strip().lower() in ("gas", "none") else solvent)
+        except InputError as error:
+            raise _fail(path, "solvent", str(error)) from None
+    global_overrides = _overrides(path, "estimate", data.get("estimate", {}))
+    ligands = _ligands(path, data.get("ligands", {}))
+    specs = data.get("complex")
+    if specs is None:
+        raise _fail(path, "complex", "no [[complex]] entries: add at least one, e.g. [[complex]] formula = \"[NiCl4]2-\"")
+    _expect(path, "complex", specs, list, "an array of tables written as [[complex]]")
+    entries, seen = [], {}
+    for index, spec in enumerate(specs):
+        entry = _complex_entry(path, index, spec, ligands, arrangements, global_overrides)
+        formula = entry.complex.formula
+        if formula in seen:
+            raise _fail(path, f"complex[{index}]", f"{formula} is already complex[{seen[formula]}]; remove the duplicate")
+        seen[formula] = index
+        entries.append(entry)
+    run = data.get("run", {})
+    _expect(path, "run", run, dict, "a [run] table")
+    _unknown_keys(path, "run", run, _RUN_KEYS)
+    for key, value in run.items():
+        if _expect(path, f"run.{key}", value, (int, float) if key == "timeout_s" else int, "a positive number") <= 0:
+            raise _fail(path, f"run.{key}", f"must be positive, got {value}")
+    return Study(title, level, arrangements, tuple(dict.fromkeys(relaxations)), path_points, tuple(entries), run,
+                 path, text)
+
+
+def load_recipe(path) -> Study:
+    """Read and validate a recipe file."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise InputError(f"recipe {path} not found: give the path of a .toml recipe (e.g. recipes/demo.toml)") from None
+    except UnicodeDecodeError:
+        raise InputError(f"recipe {path} is not UTF-8 text: save it as UTF-8") from None
+    return parse_recipe(text, str(path))
+
+
+def recipe_for_formula(formula: str, level: str) -> Study:
+    """A one-complex study (default arrangements, spins and relaxations) for `fourfold run --formula`."""
+    import json
+
+    text = f"title = {json.dumps('Single complex ' + formula)}\nlevel = {json.dumps(level)}\n\n" \
+           f"[[complex]]\nformula = {json.dumps(formula)}\n"
+    return parse_recipe(text, "--formula")
