@@ -340,11 +340,18 @@ def _run_rung(mf, rung: str, dm0, max_cycle: int) -> tuple[Any, bool, int, str |
     return work, bool(work.converged), counter.count, None
 
 
-def _ladder(mf, dm0, cycle_cap_first_rung: int | None) -> _Run:
-    """Climb RUNGS from ``dm0`` until one converges; each rung starts from the last density reached."""
+def _rung_cap(rung: str, max_cycles: int) -> int:
+    """Cycle budget of a rung: newton's macro-iterations each cost several Fock builds, so fewer."""
+    return max(1, -(-max_cycles // 4)) if rung == "newton" else max_cycles
+
+
+def _ladder(mf, dm0, cycle_cap_first_rung: int | None, rungs: tuple[str, ...] = RUNGS) -> _Run:
+    """Climb ``rungs`` from ``dm0`` until one converges; each rung starts from the last density reached."""
     cycles, failures, last = 0, [], None
-    for index, rung in enumerate(RUNGS):
-        cap = mf.max_cycle if index or cycle_cap_first_rung is None else int(cycle_cap_first_rung)
+    for index, rung in enumerate(rungs):
+        cap = _rung_cap(rung, mf.max_cycle)
+        if index == 0 and cycle_cap_first_rung is not None:
+            cap = int(cycle_cap_first_rung)
         work, converged, used, failure = _run_rung(mf, rung, dm0, cap)
         cycles += used
         if failure:
@@ -417,6 +424,21 @@ def _s2(mf, restricted: bool, spin2s: int) -> float:
     return float(mf.spin_square()[0])
 
 
+def _fock_from_orbitals(mf, mol, mo_energy: np.ndarray, mo_coeff: np.ndarray, dm: np.ndarray) -> np.ndarray:
+    """The converged (unshifted) Fock matrix F = S C ε Cᵀ S, exact for a square C (C⁻¹ = Cᵀ S).
+
+    PySCF's last diagonalisation has no level shift, so this is the plain operator, rebuilt without the
+    cost of another Fock build; with linear dependencies removed (C not square) it is built afresh.
+    """
+    if mo_coeff.shape[-1] != mo_coeff.shape[-2]:
+        return np.asarray(mf.get_fock(dm=dm))
+    overlap = mol.intor_symmetric("int1e_ovlp")
+    if mo_coeff.ndim == 3:
+        return np.array([_fock_from_orbitals(mf, mol, e, c, dm) for e, c in zip(mo_energy, mo_coeff)])
+    projected = overlap @ mo_coeff
+    return (projected * mo_energy) @ projected.T
+
+
 def _result(run: _Run, mol, spin2s: int, restricted: bool, dispersion: float, started: float, log_path,
             notes: list[str], extra_cycles: int) -> ScfResult:
     mf = run.mf
@@ -428,8 +450,8 @@ def _result(run: _Run, mol, spin2s: int, restricted: bool, dispersion: float, st
     else:
         s2 = _s2(mf, restricted, spin2s)
         dm = mf.make_rdm1()
-        fock = mf.get_fock(dm=dm)  # plain Fock: no level shift or damping
         mo_e, mo_c, mo_o = np.asarray(mf.mo_energy), np.asarray(mf.mo_coeff), np.asarray(mf.mo_occ)
+        fock = _fock_from_orbitals(mf, mol, mo_e, mo_c, dm)
         energy = float(mf.e_tot) + dispersion
         gap, aufbau = _gap_and_aufbau(mo_e, mo_o)
     cycles = run.cycles + extra_cycles
@@ -454,6 +476,10 @@ FORMS = (None, "restricted", "unrestricted")
 def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: list[str], form):
     """The ladder and, for a singlet without a given form, the broken-symmetry search.
 
+    A singlet (form None) runs RKS with DIIS only: if that converges, the RKS → UKS stability analysis
+    decides whether a broken-symmetry UKS solution is sought; if it does not, the UKS search starts at
+    once from a HOMO/LUMO-mixed guess. The stronger rungs are spent on UKS, whose space contains the
+    closed shell (measured: ideal T-4 singlets do not converge restricted at all), not on RKS.
     Returns (run, restricted, cycles spent on the discarded alternative).
     """
     scf_grid = level.scf_grid_level if level.scf_grid_level is not None else level.grid_level
@@ -461,11 +487,12 @@ def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: l
     dm0, note = _guess_density(mol, guess, restricted)
     if note:
         notes.append(note)
-    run = _finish_on_grid(_ladder(_mean_field(mol, level, restricted, scf_grid), dm0, cycle_cap_first_rung),
-                          level.grid_level)
-    if not restricted or form == "restricted":
+    search = restricted and form is None
+    rungs = RUNGS[:1] if search else RUNGS
+    run = _finish_on_grid(_ladder(_mean_field(mol, level, restricted, scf_grid), dm0, cycle_cap_first_rung,
+                                  rungs), level.grid_level)
+    if not search:
         return run, restricted, 0
-    # Singlet: look for a lower broken-symmetry UKS solution, starting from the RKS one.
     if run.converged:
         uks_dm = _unstable_uks_guess(run.mf)
         if uks_dm is None:
@@ -473,14 +500,16 @@ def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: l
             return run, True, 0
     elif run.mf.mo_coeff is not None:
         uks_dm = _mixed_homo_lumo_guess(run.mf)
-        notes.append("RKS did not converge: broken-symmetry UKS from a HOMO/LUMO-mixed guess")
+        notes.append("RKS did not converge with DIIS: UKS from a HOMO/LUMO-mixed guess")
     else:
         return run, True, 0
     uks = _finish_on_grid(_ladder(_mean_field(mol, level, False, scf_grid), uks_dm, None), level.grid_level)
     if not uks.converged:
         notes.append("broken-symmetry UKS search did not converge")
-        return run, True, uks.cycles
+        return (uks, False, run.cycles) if not run.converged else (run, True, uks.cycles)
     if not run.converged or uks.mf.e_tot < run.mf.e_tot - LOWER_ENERGY_HARTREE:
+        if _s2(uks.mf, False, 0) <= BROKEN_SYMMETRY_S2:
+            notes.append("UKS singlet converged to a closed-shell solution")
         return uks, False, run.cycles
     notes.append("UKS search from the RKS instability found no lower solution")
     return run, True, uks.cycles
