@@ -55,15 +55,21 @@ def _held_arrangement(spec: dict, atoms) -> str:
     return "SP-4" if spec["trans_angle_deg"] > 150.0 else "T-4"
 
 
-def _potential(engine: dict, atoms, charge: int, spin2s: int, log_path, threads: int):
+def _level(engine: dict):
+    from .levels import custom_level
+
+    return custom_level(engine)
+
+
+def _potential(engine: dict, atoms, charge: int, spin2s: int, log_path, threads: int, guess):
     if engine["method"] == "xtb":
         from .xtb_engine import XtbPotential
 
         return XtbPotential(atoms.get_chemical_symbols(), charge, spin2s, solvent=engine.get("solvent"),
                             spin_polarization=engine.get("spin_polarization", True), threads=threads)
-    from .pyscf_engine import potential_from_engine
+    from .pyscf_engine import PyscfPotential
 
-    return potential_from_engine(engine, atoms, charge, spin2s, log_path=log_path, threads=threads)
+    return PyscfPotential(atoms, charge, spin2s, _level(engine), guess=guess, log_path=log_path, threads=threads)
 
 
 def _indices(atoms) -> dict:
@@ -74,17 +80,21 @@ def _indices(atoms) -> dict:
             "nearest_shape_measure": found["nearest_shape_measure"], "shape_measures": found["shape_measures"]}
 
 
-def run_task(task: str, spec: dict, parent: dict | None, log_path=None, threads: int = 1) -> dict:
-    """Run one job and return its result as plain data (status 'done' or 'failed' with a reason)."""
+def run_task(task: str, spec: dict, parent: dict | None, log_path=None, threads: int = 1, chk_path=None) -> dict:
+    """Run one job and return its result as plain data (status 'done' or 'failed' with a reason).
+
+    ``chk_path``: where a DFT job saves its converged orbitals; a child job starts its SCF from its
+    parent's (the single point after a DFT relaxation)."""
     started = time.perf_counter()
     cx, atoms = start_structure(spec, parent)
     engine = spec["engine"]
+    guess = parent.get("chkfile") if parent else None
     result = {"engine": engine["method"], "warnings": []}
     try:
         if task == "single-point":
-            result.update(_single_point(engine, atoms, cx, spec, log_path, threads))
+            result.update(_single_point(engine, atoms, cx, spec, log_path, threads, guess, chk_path))
         else:
-            result.update(_relaxation(task, engine, atoms, cx, spec, log_path, threads))
+            result.update(_relaxation(task, engine, atoms, cx, spec, log_path, threads, guess, chk_path))
             atoms = result.pop("atoms")
     except NotConverged as error:
         last = getattr(error, "last_atoms", None)
@@ -102,32 +112,69 @@ def run_task(task: str, spec: dict, parent: dict | None, log_path=None, threads:
     return result
 
 
-def _relaxation(task, engine, atoms, cx, spec, log_path, threads) -> dict:
+def _relaxation(task, engine, atoms, cx, spec, log_path, threads, guess, chk_path) -> dict:
     from .relax import relax
 
     kind = "held" if task == "path-point" else spec["kind"]
-    potential = _potential(engine, atoms, cx.charge, spec["spin2s"], log_path, threads)
+    potential = _potential(engine, atoms, cx.charge, spec["spin2s"], log_path, threads, guess)
     outcome = relax(atoms, potential, kind, _held_arrangement(spec, atoms), max_steps=spec.get("max_steps", 100),
                     log_path=log_path)
     found = {"atoms": outcome.atoms, "energy_hartree": outcome.energy_hartree, "converged": outcome.converged,
              "steps": outcome.steps, "gradient_calls": outcome.gradient_calls, "message": outcome.message}
     if not outcome.converged:
         found["warnings"] = [f"relaxation {outcome.message}"]
-    scf = getattr(potential, "last_scf", None)
+    scf = getattr(potential, "last", None)
     if scf is not None:
         found.update(scf_summary(scf))
+        found.update(_d_block(scf, outcome.atoms, cx))
+        if chk_path:
+            found["chkfile"] = _save_orbitals(scf, chk_path)
     return found
 
 
-def _single_point(engine, atoms, cx, spec, log_path, threads) -> dict:
-    from .pyscf_engine import single_point
+def _single_point(engine, atoms, cx, spec, log_path, threads, guess, chk_path) -> dict:
+    from .pyscf_engine import run_scf
 
-    return single_point(engine, atoms, cx.charge, spec["spin2s"], log_path=log_path, threads=threads)
+    scf = run_scf(atoms, cx.charge, spec["spin2s"], _level(engine), guess=guess, log_path=log_path, threads=threads,
+                  chkfile=chk_path)
+    found = {"energy_hartree": scf.energy_hartree, "converged": scf.converged, **scf_summary(scf)}
+    if not scf.converged:
+        found.update(status="failed", reason=f"SCF not converged: {scf.reason}")
+        return found
+    if chk_path:
+        found["chkfile"] = str(chk_path)
+    found.update(_d_block(scf, atoms, cx))
+    return found
+
+
+def _save_orbitals(scf, chk_path) -> str:
+    from pyscf import gto
+    from pyscf.scf import chkfile
+
+    chkfile.dump_scf(gto.loads(scf.mole_json), str(chk_path), scf.energy_hartree, scf.mo_energy_hartree,
+                     scf.mo_coeff, scf.mo_occ)
+    return str(chk_path)
+
+
+def _d_block(scf, atoms, cx) -> dict:
+    """Projected d levels of the converged operator and the AOM fit to them (the calculated ligand field)."""
+    from ..field.fit import fit_aom
+    from .dblock import d_levels_from_result
+
+    levels = d_levels_from_result(scf, metal_index=0)
+    directions = atoms.get_positions()[1:5] - atoms.get_positions()[0]
+    ratios = {lig.name: lig.pi_ratio.value for lig in cx.ligands}
+    fit = fit_aom(levels.matrix_cm, directions, atoms.info.get("ligand_order"), pi_ratios=ratios)
+    return {"d_levels_cm": [float(x) for x in levels.relative_cm], "d_level_labels": list(levels.labels),
+            "d_weights": [float(x) for x in levels.d_weights], "fitted_e_sigma_cm": fit.e_sigma_cm,
+            "fitted_e_pi_cm": fit.e_pi_cm, "fitted_e_ds_cm": fit.e_ds_cm, "fit_rms_cm": fit.rms_cm,
+            "fit_tied_pi": fit.tied_pi}
 
 
 def scf_summary(scf) -> dict:
     """The plain-data fields of an SCF result that reports need."""
-    fields = ("rung", "cycles", "s2", "s2_expected", "spin_contaminated", "broken_symmetry", "homo_lumo_gap_hartree",
-              "non_aufbau")
-    return {name: getattr(scf, name) for name in fields if hasattr(scf, name)}
+    return {"rung": scf.rung, "cycles": scf.cycles, "s2": scf.s2, "s2_expected": scf.s2_expected,
+            "spin_contaminated": scf.spin_contaminated, "broken_symmetry": scf.broken_symmetry,
+            "homo_lumo_gap_hartree": scf.homo_lumo_gap_hartree, "aufbau": scf.aufbau, "scf_notes": list(scf.notes),
+            "dispersion_hartree": scf.dispersion_hartree}
 

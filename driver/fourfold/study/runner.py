@@ -81,7 +81,7 @@ def _inject_fault(label: str) -> None:
                 time.sleep(10_000)
 
 
-def _child(task, spec, parent, log_path, threads, label, conn):
+def _child(task, spec, parent, log_path, chk_path, threads, label, conn):
     """Worker process body: output to the job's log, then the job."""
     log = os.open(log_path, os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o644)
     os.dup2(log, 1)
@@ -90,7 +90,7 @@ def _child(task, spec, parent, log_path, threads, label, conn):
         _inject_fault(label)
         from ..compute.tasks import run_task
 
-        result = run_task(task, spec, parent, log_path=log_path, threads=threads)
+        result = run_task(task, spec, parent, log_path=log_path, threads=threads, chk_path=chk_path)
     except Exception as error:  # a failed job is a result; the driver records it
         first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
         result = {"status": "failed", "reason": f"{type(error).__name__}: {first}"}
@@ -144,6 +144,7 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
     with RunLock(out_dir):
         write_provenance(out_dir, study)
         (out_dir / "logs").mkdir(exist_ok=True)
+        (out_dir / "scratch").mkdir(exist_ok=True)
         store = ResultStore(store_url or out_dir / "results.db")
         jobs = expand(study)
         stored = store.status()
@@ -184,8 +185,9 @@ def _drive(pending, stored, store, out_dir, workers, threads, timeout_s, summary
             parent = store.get(job.parent) if job.parent else None
             receive, send = context.Pipe(duplex=False)
             log_path = str(out_dir / "logs" / f"{job.key[:16]}.log")
-            process = context.Process(target=_child, args=(job.task, job.spec, parent, log_path, threads, job.label, send),
-                                      daemon=True)
+            chk_path = str(out_dir / "scratch" / f"{job.key[:16]}.chk") if job.spec["engine"]["method"] != "xtb" else None
+            process = context.Process(target=_child, daemon=True,
+                                      args=(job.task, job.spec, parent, log_path, chk_path, threads, job.label, send))
             process.start()
             send.close()
             running.append(_Running(job, process, receive, time.monotonic()))

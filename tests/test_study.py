@@ -1,0 +1,165 @@
+"""Studies with real processes: resume after SIGKILL, failures recorded, the run lock, keys.
+
+All at the screen level (GFN2-xTB) on [NiCl4]2- so each job takes seconds.
+"""
+
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from fourfold.study.jobs import expand
+from fourfold.study.recipe import parse_recipe
+from fourfold.study.store import ResultStore
+
+RECIPE = """
+title = "reliability"
+level = "screen"
+relaxations = ["held"]
+[run]
+max_steps = 40
+
+[[complex]]
+formula = "[NiCl4]2-"
+
+[[complex]]
+formula = "[PdCl4]2-"
+"""
+
+
+def fourfold(*args, env=None, **kwargs):
+    return subprocess.run([sys.executable, "-m", "fourfold.cli", *args], capture_output=True, text=True,
+                          env={**os.environ, **(env or {})}, **kwargs)
+
+
+@pytest.fixture()
+def recipe(tmp_path):
+    path = tmp_path / "study.toml"
+    path.write_text(RECIPE)
+    return path
+
+
+def _rows(folder):
+    with sqlite3.connect(folder / "results.db") as db:
+        return {key: (row_id, status) for row_id, key, status in db.execute(
+            "select systems.id, text_key_values.value, s.value from systems "
+            "join text_key_values on text_key_values.id = systems.id and text_key_values.key = 'job_key' "
+            "join text_key_values s on s.id = systems.id and s.key = 'status'")}
+
+
+def _table(folder):
+    store = ResultStore(folder / "results.db")
+    return sorted((r["label"], r["status"], round(r["energy_hartree"], 8)) for r in store.results())
+
+
+def test_keys_are_stable_and_change_with_settings():
+    # same inputs -> same key; a changed setting -> a new key (DESIGN.md "job key") [common practice, no source]
+    first = {j.key for j in expand(parse_recipe(RECIPE))}
+    again = {j.key for j in expand(parse_recipe(RECIPE))}
+    changed = {j.key for j in expand(parse_recipe(RECIPE.replace("max_steps = 40", "max_steps = 41")))}
+    assert first == again and not first & changed
+    assert len(first) == 8  # 2 complexes × 2 arrangements × 2 spins, held only
+
+
+def test_sigkill_then_resume_recomputes_nothing(tmp_path, recipe):
+    reference = tmp_path / "reference"
+    assert fourfold("run", str(recipe), "--out", str(reference), "--quiet").returncode == 0
+    folder = tmp_path / "killed"
+    process = subprocess.Popen([sys.executable, "-m", "fourfold.cli", "run", str(recipe), "--out", str(folder), "--quiet"],
+                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    deadline = time.time() + 300
+    while time.time() < deadline and (not (folder / "results.db").exists() or len(_rows(folder)) < 3):
+        time.sleep(0.2)
+    os.killpg(process.pid, signal.SIGKILL)  # the driver and its workers, as a reboot would
+    process.wait()
+    before = _rows(folder)
+    assert 3 <= len(before) < 8
+    rerun = fourfold("run", str(recipe), "--out", str(folder), "--quiet")
+    assert rerun.returncode == 0, rerun.stderr
+    after = _rows(folder)
+    for key, (row_id, status) in before.items():
+        assert after[key] == (row_id, status)  # not recomputed, not rewritten
+    assert _table(folder) == _table(reference)
+    assert f"{len(before)} already in the store" in rerun.stdout
+
+
+def test_failures_are_recorded_and_others_finish(tmp_path, recipe):
+    folder = tmp_path / "faults"
+    faults = "raise:[NiCl4]2- T-4 2S=0,exit:[NiCl4]2- SP-4 2S=0,hang:[PdCl4]2- T-4 2S=0"
+    result = fourfold("run", str(recipe), "--out", str(folder), "--quiet", "--timeout", "20",
+                      env={"FOURFOLD_FAULT": faults})
+    assert result.returncode == 0, result.stderr
+    status = fourfold("status", str(folder), "--json")
+    import json
+
+    found = json.loads(status.stdout)
+    assert (found["done"], found["failed"], found["pending"]) == (5, 3, 0)
+    reasons = {f["label"]: f["reason"] for f in found["failures"]}
+    assert "injected failure" in reasons["[NiCl4]2- T-4 2S=0 held"]
+    assert "exited with status 3" in reasons["[NiCl4]2- SP-4 2S=0 held"]
+    assert "timeout after 20 s" in reasons["[PdCl4]2- T-4 2S=0 held"]
+    # a rerun without --retry-failed leaves the failures alone; with it they run (and now succeed)
+    assert "0 run now" in fourfold("run", str(recipe), "--out", str(folder), "--quiet").stdout
+    retried = fourfold("run", str(recipe), "--out", str(folder), "--quiet", "--retry-failed")
+    assert "3 run now" in retried.stdout and "8 done" in retried.stdout
+
+
+def test_second_run_on_same_folder_refuses(tmp_path, recipe):
+    folder = tmp_path / "locked"
+    first = subprocess.Popen([sys.executable, "-m", "fourfold.cli", "run", str(recipe), "--out", str(folder), "--quiet"],
+                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    try:
+        deadline = time.time() + 60
+        while time.time() < deadline and not (folder / "run.lock").exists():
+            time.sleep(0.1)
+        time.sleep(0.5)
+        second = fourfold("run", str(recipe), "--out", str(folder), "--quiet")
+        assert second.returncode == 2
+        assert "in use by a running fourfold" in second.stderr and len(second.stderr.strip().splitlines()) == 1
+    finally:
+        os.killpg(first.pid, signal.SIGKILL)
+        first.wait()
+    # the dead process holds nothing: the next run goes ahead
+    assert fourfold("run", str(recipe), "--out", str(folder), "--quiet").returncode == 0
+
+
+BAD_RECIPES = [
+    ("title = 'x'\nlevel = 'screen'\n", "no [[complex]] entries"),
+    ("level = 'screen'\n[[complex]]\nformula = '[NiCl4]2-'\ncolour = 'blue'\n", "unknown key 'colour'"),
+    ("levle = 'screen'\n[[complex]]\nformula = '[NiCl4]2-'\n", "unknown key 'levle'"),
+    ("level = 'ultra'\n[[complex]]\nformula = '[NiCl4]2-'\n", "unknown level 'ultra'"),
+    ("level = 3\n[[complex]]\nformula = '[NiCl4]2-'\n", "level"),
+    ("[[complex]]\nformula = '[NiCl4]2-'\n[[complex]]\nformula = '[NiCl4]2-'\n", "remove the duplicate"),
+    ("[[complex]]\nformula = '[NiQ4]2-'\n", "unknown ligand 'Q'"),
+    ("[[complex]]\nformula = '[NiCl4]3+'\n", "oxidation state +7"),
+    ("[[complex]]\nformula = '[NiCl4]2-'\nspins = [1]\n", "wrong parity"),
+    ("[[complex]]\nformula = 42\n", "must be a formula string"),
+    ("arrangements = ['T-4', 'OC-6']\n[[complex]]\nformula = '[NiCl4]2-'\n", "unknown arrangement 'OC-6'"),
+    ("relaxations = ['wobbly']\n[[complex]]\nformula = '[NiCl4]2-'\n", "use held, free or both"),
+    ("path_points = 1\n[[complex]]\nformula = '[NiCl4]2-'\n", "at least 2"),
+    ("[[complex]]\nformula = '[NiCl4]2-'\nestimate = { 'Cl.e_sigma' = 'big' }\n", "must be a number"),
+    ("[[complex]]\nformula = '[NiCl4]2-'\nestimate = { 'Br.e_sigma' = 3 }\n", "cannot override 'Br.e_sigma'"),
+    ("[ligands.X]\nxyz = 'N 0 0 0'\ncharge = 0\n[[complex]]\nformula = '[NiX4]2+'\n", "missing 'donor_index'"),
+    ("[[complex]]\nmetal = 'Ni'\nligands = ['Cl', 'Cl', 'Cl', 'Cl']\n", "'oxidation_state' is missing"),
+    ("[[complex]]\nmetal = 'Ni'\noxidation_state = 2\nligands = ['Cl','Cl','Cl','Cl']\ncharge = 0\n", "charge does not add up"),
+    ("solvent = 'lava'\n[[complex]]\nformula = '[NiCl4]2-'\n", "unknown solvent 'lava'"),
+    ("[run]\nworkers = 0\n[[complex]]\nformula = '[NiCl4]2-'\n", "must be positive"),
+    ("[level]\nbase = 'quick'\nfunctionl = 'pbe0'\n[[complex]]\nformula = '[NiCl4]2-'\n", "functionl"),
+    ("title = 'unclosed\n", "not valid TOML"),
+]
+
+
+@pytest.mark.parametrize("text,fragment", BAD_RECIPES)
+def test_malformed_recipes_one_line_exit_2(tmp_path, text, fragment):
+    path = tmp_path / "bad.toml"
+    path.write_text(text)
+    result = fourfold("run", str(path), "--out", str(tmp_path / "out"))
+    assert result.returncode == 2, result.stderr
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and fragment in lines[0] and str(path) in lines[0], lines
+    assert not (tmp_path / "out").exists()  # validated before anything ran or was written
