@@ -57,6 +57,17 @@ def test_held_relaxation_keeps_the_arrangement(directions, arrangement, spin2s):
         assert np.ptp(final_bonds) < 0.01
 
 
+def test_held_jahn_teller_state_distorts_from_an_ideal_start():
+    # T-4 d8 triplet: e⁴t2⁴, an orbitally degenerate 3T1 state, so equal bonds are not a minimum even
+    # with the angles held (Jahn & Teller, Proc. R. Soc. A 1937, 161, 220, from memory). From the exactly
+    # symmetric start the relaxation must still find the distortion, as it would from any other start.
+    result = relax(nicl4(TETRAHEDRON), screen_potential(2), "held", "T-4")
+    assert result.converged, result.message
+    final = result.atoms.get_positions()
+    assert np.ptp(np.linalg.norm(final[1:5] - final[0], axis=1)) > 0.05
+    assert np.abs(ligand_angles_deg(final) - ligand_angles_deg(nicl4(TETRAHEDRON).get_positions())).max() < 0.5
+
+
 def test_free_square_triplet_falls_towards_tetrahedron():
     # Issue 3 check: free SP-4 [NiCl4]2- at 2S = 2 ends with tau4 > 0.6 (a planar d8 triplet is not a
     # minimum; DESIGN.md "Chemistry decisions"). tau4: Yang, Powell, Houser, Dalton Trans. 2007, 955.
@@ -108,7 +119,8 @@ def test_held_rejects_a_start_of_another_shape():
         relax(nicl4(TETRAHEDRON), screen_potential(2), "held", "SP-4")
 
 
-@pytest.mark.parametrize("option", [{"kind": "rigid"}, {"arrangement": "OC-6"}, {"convergence": "sloppy"}])
+@pytest.mark.parametrize("option", [{"kind": "rigid"}, {"arrangement": "OC-6"}, {"convergence": "sloppy"},
+                                    {"donor_indices": (1, 2, 3, 9)}, {"donor_indices": (0, 1, 2, 3)}])
 def test_unknown_options_are_input_errors(option):
     arguments = {"kind": "free", "arrangement": "T-4", **option}
     with pytest.raises(InputError):

@@ -4,16 +4,23 @@ A potential is ``positions_angstrom (N, 3) -> (energy_hartree, gradient_hartree_
 
 Two kinds (DESIGN.md, "Chemistry decisions"):
 
-* ``held`` keeps the L–M–L arrangement of the start geometry: every L–M–L angle that is not near
-  linear is frozen, and for SP-4 two dihedrals keep the donors and the metal in one plane. Angles
-  near 180° are never constrained (the angle coordinate is ill-defined there). In a square,
-  out-of-plane motions change the cis angles only to second order, hence the plane dihedrals.
+* ``held`` keeps the L–M–L arrangement of the given geometry: every L–M–L angle that is not near
+  linear is held at its value there, and for SP-4 two dihedrals keep the donors and the metal in one
+  plane. Angles near 180° are never constrained (the angle coordinate is ill-defined there). In a
+  square, out-of-plane motions change the cis angles only to second order, hence the plane dihedrals.
   Bond lengths and the ligands' own internal coordinates relax.
-* ``free`` is unconstrained. It starts from the given geometry displaced by a small fixed
-  pseudo-random amount (``FREE_NUDGE_ANGSTROM``, same for every run): from an exactly symmetric start
-  the gradient keeps the symmetry, and a free relaxation of an ideal square would stay on the
-  square saddle point instead of showing where the state goes (measured: free SP-4 [NiCl4]2-
-  triplet from the ideal square ends with tau4 = 0.000).
+* ``free`` is unconstrained.
+
+Neither starts exactly where it is told to, because from an exactly symmetric start the gradient
+keeps the symmetry. A free relaxation starts from the given geometry with every atom displaced by a
+small fixed pseudo-random amount: from the ideal square a free SP-4 [NiCl4]2- triplet otherwise
+stays on the square saddle point (measured: tau4 = 0.000). A held relaxation starts with each donor
+moved along its own M–L axis (no L–M–L angle changes): a Jahn–Teller-active state such as the T-4
+d8 triplet otherwise keeps four equal bonds from an ideal start but distorts from a pre-relaxed one
+(measured with PBE/def2-SVP: end points 1.1 kJ/mol apart), and the end point would depend on where
+the relaxation began. Both displacements are at most ``NUDGE_ANGSTROM`` and the same in every run.
+(Displacing a held start off its angles and letting geomeTRIC restore them fails: near-linear trans
+angles make geomeTRIC rebuild its coordinates, which it cannot do in a constrained optimisation.)
 
 geomeTRIC's log goes to ``log_path`` (or nowhere) and its scratch files to a temporary directory.
 """
@@ -38,7 +45,7 @@ from geometric.optimize import Optimizer
 from geometric.params import OptParams
 from geometric.prepare import parse_constraints
 
-from ..errors import ComputeError, InputError, NotConverged
+from ..errors import ComputeError, FourfoldError, InputError, NotConverged
 from ..geometry.polyhedra import ARRANGEMENTS
 from ..units import angstrom_to_bohr, bohr_to_angstrom
 
@@ -51,8 +58,8 @@ LINEAR_ANGLE_DEG = 150.0
 # How many trans L–M–L angles each ideal arrangement has (SS-4: both seesaw definitions have one).
 _TRANS_ANGLES = {"T-4": 0, "SP-4": 2, "SS-4": 1, "vTBPY-4": 0}
 
-# Largest Cartesian displacement of the free-relaxation start; fixed seed, so runs are reproducible.
-FREE_NUDGE_ANGSTROM = 0.02
+# Largest Cartesian displacement of the start; fixed seed, so runs are reproducible.
+NUDGE_ANGSTROM = 0.02
 _NUDGE_SEED = 4
 
 # fourfold's convergence names -> geomeTRIC convergence sets.
@@ -92,6 +99,15 @@ def _angle_deg(positions, metal_index: int, i: int, j: int) -> float:
     return float(np.degrees(np.arccos(np.clip(cosine, -1.0, 1.0))))
 
 
+def _checked_donors(n_atoms: int, metal_index: int, donor_indices: Sequence[int]) -> list[int]:
+    donors = [int(d) for d in donor_indices]
+    indices = donors + [metal_index]
+    if len(donors) != 4 or len(set(indices)) != 5 or not all(0 <= i < n_atoms for i in indices):
+        raise InputError(f"need a metal index and four distinct donor indices among {n_atoms} atoms, "
+                         f"got metal {metal_index}, donors {donors}")
+    return donors
+
+
 def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
                      donor_indices: Sequence[int]) -> str:
     """geomeTRIC ``$freeze`` block that keeps the start geometry's L–M–L arrangement.
@@ -102,9 +118,7 @@ def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
     if arrangement not in ARRANGEMENTS:
         raise InputError(f"unknown arrangement '{arrangement}': use one of {', '.join(ARRANGEMENTS)}")
     positions = np.asarray(positions_angstrom, dtype=float).reshape(-1, 3)
-    donors = [int(d) for d in donor_indices]
-    if len(donors) != 4 or len(set(donors)) != 4 or metal_index in donors:
-        raise InputError(f"need four distinct donor indices other than the metal, got {donors}")
+    donors = _checked_donors(len(positions), metal_index, donor_indices)
     pairs = list(combinations(donors, 2))
     trans = [p for p in pairs if _angle_deg(positions, metal_index, *p) > LINEAR_ANGLE_DEG]
     if len(trans) != _TRANS_ANGLES[arrangement]:
@@ -163,9 +177,19 @@ def _geometric_log(log_path):
 
 
 def _nudged(positions_angstrom: np.ndarray) -> np.ndarray:
+    """Every atom displaced (free start)."""
     rng = np.random.default_rng(_NUDGE_SEED)
-    return positions_angstrom + rng.uniform(-FREE_NUDGE_ANGSTROM, FREE_NUDGE_ANGSTROM,
-                                            positions_angstrom.shape)
+    return positions_angstrom + rng.uniform(-NUDGE_ANGSTROM, NUDGE_ANGSTROM, positions_angstrom.shape)
+
+
+def _stretched(positions_angstrom: np.ndarray, metal_index: int, donor_indices: Sequence[int]) -> np.ndarray:
+    """Each donor moved along its M–L axis (held start): bond lengths change, L–M–L angles do not."""
+    rng = np.random.default_rng(_NUDGE_SEED)
+    out = positions_angstrom.copy()
+    for donor, shift_angstrom in zip(donor_indices, rng.uniform(-NUDGE_ANGSTROM, NUDGE_ANGSTROM, 4)):
+        bond = out[donor] - out[metal_index]
+        out[donor] += shift_angstrom * bond / np.linalg.norm(bond)
+    return out
 
 
 def _atoms_at(atoms, positions_angstrom):
@@ -177,7 +201,7 @@ def _atoms_at(atoms, positions_angstrom):
 
 def _internal_coordinates(molecule, kind: str, arrangement: str, metal_index: int,
                           donor_indices: Sequence[int]):
-    """TRIC coordinates (geomeTRIC's default), with the held constraints built in for ``held``."""
+    """TRIC coordinates (geomeTRIC's default); for ``held`` with the constraints frozen at the start."""
     constraints, constraint_values = None, None
     if kind == "held":
         text = held_constraints(molecule.xyzs[0], arrangement, metal_index, donor_indices)
@@ -206,9 +230,12 @@ def relax(atoms, potential: Potential, kind: str, arrangement: str, metal_index:
     if max_steps < 1:
         raise InputError(f"max_steps must be at least 1, got {max_steps}")
 
-    start_angstrom = np.asarray(atoms.get_positions(), dtype=float)
-    if kind == "free":
-        start_angstrom = _nudged(start_angstrom)
+    given_angstrom = np.asarray(atoms.get_positions(), dtype=float)
+    donors = _checked_donors(len(given_angstrom), metal_index, donor_indices)
+    if kind == "held":
+        start_angstrom = _stretched(given_angstrom, metal_index, donors)
+    else:
+        start_angstrom = _nudged(given_angstrom)
     molecule = Molecule()
     molecule.elem = list(atoms.get_chemical_symbols())
     molecule.xyzs = [start_angstrom.copy()]
@@ -218,7 +245,7 @@ def relax(atoms, potential: Potential, kind: str, arrangement: str, metal_index:
     # rotation regularisation); those numpy warnings are noise on the terminal.
     with (tempfile.TemporaryDirectory(prefix="fourfold-relax-") as scratch, _geometric_log(log_path),
           np.errstate(divide="ignore", invalid="ignore")):
-        coordinates = _internal_coordinates(engine.M, kind, arrangement, metal_index, donor_indices)
+        coordinates = _internal_coordinates(engine.M, kind, arrangement, metal_index, donors)
         params = OptParams(maxiter=max_steps, convergence_set=CONVERGENCE_SETS[convergence])
         optimizer = Optimizer(angstrom_to_bohr(start_angstrom).ravel(), engine.M, coordinates,
                               engine, scratch, params, print_info=False)
@@ -230,14 +257,19 @@ def relax(atoms, potential: Potential, kind: str, arrangement: str, metal_index:
             message = f"not converged after {optimizer.Iteration} steps (max_steps={max_steps})"
         except NotConverged as err:
             last = engine.last_good_positions_angstrom
-            last_atoms = _atoms_at(atoms, start_angstrom if last is None else last)
+            last_atoms = _atoms_at(atoms, given_angstrom if last is None else last)
             raise RelaxInterrupted(
                 f"{kind} relaxation interrupted at step {optimizer.Iteration} "
                 f"(gradient call {engine.calls + 1}): {err}", last_atoms, optimizer.Iteration,
             ) from err
-        except GeometricError as err:
+        except FourfoldError:
+            raise
+        except (GeometricError, ValueError, RuntimeError, np.linalg.LinAlgError) as err:
+            # geomeTRIC also raises bare ValueError/RuntimeError (e.g. when a constrained coordinate
+            # system has to be rebuilt); the potential's own errors passed through above.
             first_line = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
-            raise ComputeError(f"geomeTRIC failed in a {kind} relaxation: {first_line}") from err
+            raise ComputeError(f"geomeTRIC failed in a {kind} relaxation at step {optimizer.Iteration}: "
+                               f"{first_line}") from err
 
     final_angstrom = bohr_to_angstrom(np.asarray(optimizer.X, dtype=float).reshape(-1, 3))
     return RelaxResult(
