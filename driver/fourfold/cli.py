@@ -106,7 +106,7 @@ def _progress_printer(quiet: bool):
     return progress, update
 
 
-def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_json, timeout_s=None):
+def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_json, timeout_s=None, single=False):
     from .report.text import run_summary_text
     from .study.runner import run_study
 
@@ -122,7 +122,8 @@ def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_js
 
     comparison = comparison_for_folder(out_dir, study)
     if as_json:
-        click.echo(json.dumps(comparison.as_dict(), indent=2, ensure_ascii=False))
+        data = comparison.as_dict()
+        click.echo(json.dumps(data["complexes"][0] if single else data, indent=2, ensure_ascii=False))
     else:
         click.echo(comparison.text())
         click.echo(run_summary_text(summary, out_dir))
@@ -167,7 +168,7 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
     default_name = Path(recipe).stem if recipe else _folder_name(study.complexes[0].complex.formula, level)
     _run_and_report(study, out_dir or Path("outputs") / default_name, workers, threads, retry_failed, quiet,
-                    as_json, timeout_s)
+                    as_json, timeout_s, single=bool(formula))
 
 
 def _folder_name(formula: str, level: str) -> str:

@@ -247,8 +247,6 @@ def load_recipe(path) -> Study:
 
 def recipe_for_formula(formula: str, level: str) -> Study:
     """A one-complex study (default arrangements, spins and relaxations) for `fourfold run --formula`."""
-    import json
+    from .scan import scan_recipe_text
 
-    text = f"title = {json.dumps('Single complex ' + formula)}\nlevel = {json.dumps(level)}\n\n" \
-           f"[[complex]]\nformula = {json.dumps(formula)}\n"
-    return parse_recipe(text, "--formula")
+    return parse_recipe(scan_recipe_text(formula, level), "--formula")

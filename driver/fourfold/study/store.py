@@ -17,6 +17,29 @@ _COLUMNS = {"task": "task", "arrangement": "arrangement", "isomer": "isomer", "s
             "complex_formula": "formula"}
 
 
+def _initialised_sqlite(path: Path) -> str:
+    """Path of a ready SQLite results file. A new file is made under a temporary name and renamed into place,
+    so a driver killed while ASE creates the tables never leaves a half-made database behind; a file
+    that has no tables yet (left by an older, interrupted start) holds no results and is made anew."""
+    import os
+    import sqlite3
+
+    from ase.db import connect
+
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if path.exists():
+        with sqlite3.connect(path) as con:
+            tables = {row[0] for row in con.execute("select name from sqlite_master where type='table'")}
+        if "information" in tables:
+            return str(path)
+        path.unlink()
+    partial = path.with_name(path.name + ".new")
+    partial.unlink(missing_ok=True)
+    connect(str(partial), type="db", use_lock_file=False).count()  # creates the tables
+    os.replace(partial, path)
+    return str(path)
+
+
 class ResultStore:
     def __init__(self, url_or_path):
         from ase.db import connect
@@ -25,8 +48,7 @@ class ResultStore:
         if text.startswith(("postgresql://", "postgres://")):
             self._db = connect(text)
         else:
-            Path(text).parent.mkdir(parents=True, exist_ok=True)
-            self._db = connect(text, type="db", use_lock_file=False)
+            self._db = connect(_initialised_sqlite(Path(text)), type="db", use_lock_file=False)
         self.location = text
 
     def _rows(self, **selection):
