@@ -9,6 +9,7 @@ from ase import Atoms
 from fourfold.compute.relax import RelaxInterrupted, relax
 from fourfold.compute.xtb_engine import XtbPotential
 from fourfold.errors import InputError, NotConverged
+from fourfold.geometry.polyhedra import d2d_path
 from fourfold.geometry.shape import tau4
 
 # Unit vectors from a metal at the origin: regular tetrahedron and square (common practice, no source).
@@ -55,6 +56,17 @@ def test_held_relaxation_keeps_the_arrangement(directions, arrangement, spin2s):
     # and distort along the bonds (Jahn & Teller, Proc. R. Soc. A 1937, 161, 220, from memory).
     if arrangement == "SP-4":
         assert np.ptp(final_bonds) < 0.01
+
+
+@pytest.mark.parametrize("trans_angle_deg", [160.0, 175.0])
+def test_held_path_point_keeps_its_angles(trans_angle_deg):
+    # A point on the D2d flattening path T-4 -> SP-4 (REFERENCES.md §1b; Casanova et al., J. Am. Chem.
+    # Soc. 2004, 126, 1755, from memory), held as the runner holds path points near the square.
+    start = nicl4(d2d_path(trans_angle_deg))
+    result = relax(start, screen_potential(0), "held", "SP-4")
+    assert result.converged, result.message
+    drift_deg = ligand_angles_deg(result.atoms.get_positions()) - ligand_angles_deg(start.get_positions())
+    assert np.abs(drift_deg).max() < 0.5
 
 
 def test_held_jahn_teller_state_distorts_from_an_ideal_start():

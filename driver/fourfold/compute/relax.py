@@ -5,9 +5,10 @@ A potential is ``positions_angstrom (N, 3) -> (energy_hartree, gradient_hartree_
 Two kinds (DESIGN.md, "Chemistry decisions"):
 
 * ``held`` keeps the L–M–L arrangement of the given geometry: every L–M–L angle that is not near
-  linear is held at its value there, and for SP-4 two dihedrals keep the donors and the metal in one
-  plane. Angles near 180° are never constrained (the angle coordinate is ill-defined there). In a
-  square, out-of-plane motions change the cis angles only to second order, hence the plane dihedrals.
+  linear (above ``HOLDABLE_ANGLE_DEG``) is held at its value there, and for a square two dihedrals
+  keep the donors and the metal in one plane. Angles near 180° are never constrained (the angle
+  coordinate is ill-defined there). In a square, out-of-plane motions change the cis angles only to
+  second order, hence the plane dihedrals.
   Bond lengths and the ligands' own internal coordinates relax.
 * ``free`` is unconstrained.
 
@@ -53,8 +54,12 @@ Potential = Callable[[np.ndarray], tuple[float, np.ndarray]]
 
 KINDS = ("held", "free")
 
-# Above this an L–M–L angle counts as trans (linear): it is not constrained.
+# Above this an L–M–L angle counts as trans when the start is checked against its arrangement.
 LINEAR_ANGLE_DEG = 150.0
+# Up to this every L–M–L angle can be held as an angle: a start with no angle above it has all six
+# held (a flattened tetrahedron on the T-4 -> SP-4 path included; its cis angles and plane dihedrals
+# alone leave the trans angles free to drift, measured 0.1° at a trans angle of 155°).
+HOLDABLE_ANGLE_DEG = 170.0
 # How many trans L–M–L angles each ideal arrangement has (SS-4: both seesaw definitions have one).
 _TRANS_ANGLES = {"T-4": 0, "SP-4": 2, "SS-4": 1, "vTBPY-4": 0}
 
@@ -126,11 +131,12 @@ def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
             f"start geometry does not look {arrangement}: {len(trans)} L–M–L angles above "
             f"{LINEAR_ANGLE_DEG:.0f}°, expected {_TRANS_ANGLES[arrangement]} (check donor indices)"
         )
+    all_holdable = all(_angle_deg(positions, metal_index, *p) <= HOLDABLE_ANGLE_DEG for p in pairs)
+    held = pairs if all_holdable else [p for p in pairs if p not in trans]
     # geomeTRIC numbers atoms from 1.
     m = metal_index + 1
-    lines = ["$freeze"]
-    lines += [f"angle {i + 1} {m} {j + 1}" for i, j in pairs if (i, j) not in trans]
-    if arrangement == "SP-4":
+    lines = ["$freeze"] + [f"angle {i + 1} {m} {j + 1}" for i, j in held]
+    if arrangement == "SP-4" and not all_holdable:
         (a, c), (b, d) = trans
         if len({a, b, c, d}) != 4:
             raise InputError("start geometry does not look SP-4: its two trans angles share a donor")
