@@ -30,7 +30,6 @@ from typing import Any
 import numpy as np
 
 from ..errors import ComputeError, InputError, NotConverged
-from ..units import angstrom_to_bohr
 from .levels import Level, solvent_epsilon
 
 RUNGS = ("diis", "shift_damp", "newton", "smearing")
@@ -98,13 +97,12 @@ def _ecp_for(basis: str, ecp: str | None, heavy: list[str]) -> dict[str, str]:
     return {symbol: ecp for symbol in heavy}
 
 
-def build_mole(atoms, charge: int, spin2s: int, basis: str, ecp: str | None = "auto",
-               log_path: str | os.PathLike | None = None, stream=None):
+def build_mole(atoms, charge: int, spin2s: int, basis: str, ecp: str | None = "auto", stream=None):
     """A built ``pyscf.gto.Mole`` for ``atoms`` (Å); ECP on every atom with Z > 36 (``ecp="auto"``).
 
     ComputeError if an atom with Z > 36 ends up without an ECP; InputError if the electron count and
-    2S have different parity or 2S exceeds the electron count. PySCF output goes to ``stream`` (an open
-    file), else to ``log_path`` (appended), else nowhere.
+    2S have different parity or 2S exceeds the electron count. PySCF logs to ``stream`` (an open log
+    file) at INFO level, or not at all (verbose 0) without one.
     """
     from pyscf import gto
 
@@ -118,9 +116,8 @@ def build_mole(atoms, charge: int, spin2s: int, basis: str, ecp: str | None = "a
     mol.ecp = _ecp_for(basis, ecp, heavy)
     mol.charge = int(charge)
     mol.spin = int(spin2s)
-    if stream is None and log_path is not None:
-        stream = open(log_path, "a")
-    mol.stdout = stream if stream is not None else open(os.devnull, "w")
+    if stream is not None:
+        mol.stdout = stream
     mol.verbose = LOG_VERBOSITY if stream is not None else 0
     nelectron = sum(numbers) - int(charge)
     if spin2s < 0 or spin2s > nelectron or (nelectron - spin2s) % 2:
@@ -270,7 +267,9 @@ def _guess_density(mol, guess, restricted: bool) -> tuple[np.ndarray | None, str
         mo_coeff, mo_occ = np.asarray(data["mo_coeff"]), np.asarray(data["mo_occ"])
     else:
         raise InputError(f"a guess must be a density array, an ScfResult or a chkfile path, got {type(guess).__name__}")
-    if old_mol.nao == mol.nao and old_mol.basis == mol.basis:
+    if [old_mol.atom_symbol(i) for i in range(old_mol.natm)] != [mol.atom_symbol(i) for i in range(mol.natm)]:
+        return None, "guess belongs to other atoms: cold start"
+    if gto.same_basis_set(old_mol, mol):  # same basis, perhaps another geometry
         dm = _density_from_orbitals(mo_coeff, mo_occ)
     else:
         # A different basis (e.g. def2-SVP relaxation -> def2-TZVP single point): project the orbitals.
@@ -476,10 +475,11 @@ FORMS = (None, "restricted", "unrestricted")
 def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: list[str], form):
     """The ladder and, for a singlet without a given form, the broken-symmetry search.
 
-    A singlet (form None) runs RKS with DIIS only: if that converges, the RKS → UKS stability analysis
-    decides whether a broken-symmetry UKS solution is sought; if it does not, the UKS search starts at
-    once from a HOMO/LUMO-mixed guess. The stronger rungs are spent on UKS, whose space contains the
-    closed shell (measured: ideal T-4 singlets do not converge restricted at all), not on RKS.
+    A singlet (form None) runs RKS with DIIS only (at most half the cycle budget). If that converges,
+    the RKS → UKS stability analysis decides whether a broken-symmetry UKS solution is sought; if it
+    does not, the UKS search starts at once from a HOMO/LUMO-mixed guess. The stronger rungs are spent
+    on UKS, whose space contains the closed shell, not on RKS (DESIGN.md: tetrahedral singlets converged
+    only as broken-symmetry UKS solutions, and one did not converge restricted even with newton).
     Returns (run, restricted, cycles spent on the discarded alternative).
     """
     scf_grid = level.scf_grid_level if level.scf_grid_level is not None else level.grid_level
@@ -489,6 +489,9 @@ def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: l
         notes.append(note)
     search = restricted and form is None
     rungs = RUNGS[:1] if search else RUNGS
+    if search and cycle_cap_first_rung is None:
+        # Closed shells that converge do so in 10–24 DIIS cycles (DESIGN.md); spend no more on the probe.
+        cycle_cap_first_rung = max(1, level.max_cycles // 2)
     run = _finish_on_grid(_ladder(_mean_field(mol, level, restricted, scf_grid), dm0, cycle_cap_first_rung,
                                   rungs), level.grid_level)
     if not search:
