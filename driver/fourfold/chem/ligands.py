@@ -68,10 +68,9 @@ def _sourced(entry, sources) -> Sourced:
 def _bundled() -> dict[str, Ligand]:
     table = load_table("ligands")
     sources = table["sources"]
-    repulsion_defaults = table.get("repulsion_defaults_cm", {})
     ligands = {}
     for name, row in table.items():
-        if name in ("sources", "radii_pm", "repulsion_defaults_cm"):
+        if name in ("sources", "radii_pm"):
             continue
         symbols = tuple(atom[0] for atom in row["atoms"])
         positions = np.array([atom[1:] for atom in row["atoms"]], dtype=float)

@@ -121,7 +121,7 @@ def run_summary_text(summary, out_dir) -> str:
             f"({summary.ran} run now, {summary.skipped} already in the store) in {summary.wall_seconds:.0f} s; "
             f"results in {out_dir}")
     if summary.failures:
-        line += f"\nfailed: " + "; ".join(f"{label} — {reason}" for label, reason in summary.failures[:10])
+        line += "\nfailed: " + "; ".join(f"{label} — {reason}" for label, reason in summary.failures[:10])
     return line
 
 

@@ -121,8 +121,8 @@ def _failed(job: Job, reason: str, parent: dict | None) -> dict:
 
 
 class _Running:
-    def __init__(self, job, process, conn, started):
-        self.job, self.process, self.conn, self.started = job, process, conn, started
+    def __init__(self, job, process, conn, started, parent):
+        self.job, self.process, self.conn, self.started, self.parent = job, process, conn, started, parent
 
 
 def write_provenance(out_dir: Path, study) -> None:
@@ -131,10 +131,12 @@ def write_provenance(out_dir: Path, study) -> None:
 
 
 def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: bool = False,
-              timeout_s: float | None = None, progress=None, store_url: str | None = None) -> RunSummary:
+              timeout_s: float | None = None, progress=None, store_url: str | None = None,
+              pool_factory=None) -> RunSummary:
     """Run every job of ``study`` not yet done in ``out_dir``'s store; returns counts and failures.
 
     ``progress`` is an optional callable(summary, running_labels) called as jobs finish.
+    ``pool_factory(out_dir, timeout_s)`` makes the executor (default: a LocalPool of ``workers``).
     """
     out_dir = Path(out_dir)
     timeout_s = float(timeout_s or study.run.get("timeout_s", DEFAULT_TIMEOUT_S))
@@ -158,45 +160,52 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
         summary.done = sum(1 for j in jobs if stored.get(j.key) == "done")
         summary.failed = sum(1 for j in jobs if stored.get(j.key) == "failed")
         pending = [j for j in jobs if j.key not in stored]
-        _drive(pending, stored, store, out_dir, workers, threads, timeout_s, summary, progress)
+        pool = (pool_factory(out_dir, timeout_s) if pool_factory
+                else LocalPool(workers, threads, out_dir, timeout_s))
+        _drive(pending, stored, store, pool, summary, progress)
     summary.wall_seconds = time.perf_counter() - started
     return summary
 
 
-def _drive(pending, stored, store, out_dir, workers, threads, timeout_s, summary, progress):
-    # The fork server inherits this environment when it starts: its numpy (preloaded) and every job forked
-    # from it then use `threads` BLAS/OpenMP threads, not one per core each (oversubscription measured 3× slower).
-    for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ[name] = str(threads)
-    context = get_context("forkserver")
-    context.set_forkserver_preload(["fourfold.compute.tasks", "numpy"])
-    running: list[_Running] = []
-    if progress:
-        progress(summary, [])
-    while pending or running:
-        # Jobs whose parent failed are failures too (recorded, so a --retry-failed rerun picks them up).
-        for job in [j for j in pending if j.parent and stored.get(j.parent) == "failed"]:
-            pending.remove(job)
-            _finish(job, _failed(job, "parent job failed", None), store, stored, summary)
-        ready = [j for j in pending if not j.parent or stored.get(j.parent) == "done"]
-        while ready and len(running) < workers:
-            job = ready.pop(0)
-            pending.remove(job)
-            parent = store.get(job.parent) if job.parent else None
-            receive, send = context.Pipe(duplex=False)
-            log_path = str(out_dir / "logs" / f"{job.key[:16]}.log")
-            chk_path = str(out_dir / "scratch" / f"{job.key[:16]}.chk") if job.spec["engine"]["method"] != "xtb" else None
-            process = context.Process(target=_child, daemon=True,
-                                      args=(job.task, job.spec, parent, log_path, chk_path, threads, job.label, send))
-            process.start()
-            send.close()
-            running.append(_Running(job, process, receive, time.monotonic()))
-        if progress:
-            progress(summary, [r.job.label for r in running])
-        if not running:
-            continue
-        connection.wait([r.conn for r in running] + [r.process.sentinel for r in running], timeout=_POLL_S)
-        for item in list(running):
+class LocalPool:
+    """Up to ``workers`` jobs side by side, each in a process forked from a clean fork server.
+
+    The pool interface (``free_slots``, ``submit``, ``collect``, ``running_labels``, ``close``) is what
+    the driver loop needs; fourfold.study.cluster implements it on Dask."""
+
+    def __init__(self, workers: int, threads: int, out_dir: Path, timeout_s: float):
+        # The fork server inherits this environment when it starts: its numpy (preloaded) and every job
+        # forked from it then use `threads` BLAS/OpenMP threads, not one per core each (oversubscription
+        # measured 3× slower).
+        for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+            os.environ[name] = str(threads)
+        self._context = get_context("forkserver")
+        self._context.set_forkserver_preload(["fourfold.compute.tasks", "numpy"])
+        self.workers, self.threads, self.out_dir, self.timeout_s = workers, threads, out_dir, timeout_s
+        self._running: list[_Running] = []
+
+    def free_slots(self) -> int:
+        return self.workers - len(self._running)
+
+    def running_labels(self) -> list[str]:
+        return [r.job.label for r in self._running]
+
+    def submit(self, job: Job, parent: dict | None) -> None:
+        receive, send = self._context.Pipe(duplex=False)
+        log_path, chk_path = job_paths(self.out_dir, job)
+        process = self._context.Process(target=_child, daemon=True,
+                                        args=(job.task, job.spec, parent, log_path, chk_path, self.threads, job.label, send))
+        process.start()
+        send.close()
+        self._running.append(_Running(job, process, receive, time.monotonic(), parent))
+
+    def collect(self, wait_s: float) -> list[tuple[Job, dict]]:
+        """Jobs that ended (result, crash or timeout) within ``wait_s`` seconds, with their results."""
+        if not self._running:
+            return []
+        connection.wait([r.conn for r in self._running] + [r.process.sentinel for r in self._running], timeout=wait_s)
+        ended = []
+        for item in list(self._running):
             result = None
             if item.conn.poll():
                 try:
@@ -204,27 +213,61 @@ def _drive(pending, stored, store, out_dir, workers, threads, timeout_s, summary
                 except EOFError:
                     result = None
             if result is None and item.process.is_alive():
-                if time.monotonic() - item.started > timeout_s:
-                    item.process.kill()
-                    item.process.join()
-                    result = _failed(item.job, f"timeout after {timeout_s:.0f} s", _parent_of(item.job, store))
-                else:
+                if time.monotonic() - item.started <= self.timeout_s:
                     continue
+                item.process.kill()
+                item.process.join()
+                result = {"status": "failed", "reason": f"timeout after {self.timeout_s:.0f} s"}
             item.process.join(timeout=5)
             if result is None:
-                result = _failed(item.job, _exit_reason(item.process.exitcode), _parent_of(item.job, store))
-            elif result.get("status") == "failed" and "symbols" not in result:
-                result = {**_failed(item.job, result["reason"], _parent_of(item.job, store)), **result}
+                result = {"status": "failed", "reason": _exit_reason(item.process.exitcode)}
             item.conn.close()
-            running.remove(item)
-            summary.ran += 1
-            _finish(item.job, result, store, stored, summary)
+            self._running.remove(item)
+            ended.append((item.job, complete_failure(item.job, result, item.parent)))
+        return ended
+
+    def close(self) -> None:
+        for item in self._running:
+            item.process.kill()
+
+
+def job_paths(out_dir: Path, job: Job) -> tuple[str, str | None]:
+    """Per-job log file, and the orbital file of a DFT job (xTB jobs keep none)."""
+    log_path = str(out_dir / "logs" / f"{job.key[:16]}.log")
+    chk_path = str(out_dir / "scratch" / f"{job.key[:16]}.chk") if job.spec["engine"]["method"] != "xtb" else None
+    return log_path, chk_path
+
+
+def complete_failure(job: Job, result: dict, parent: dict | None) -> dict:
+    """A failure without a structure gets the job's start geometry, so every stored row has one."""
+    if result.get("status") == "failed" and "symbols" not in result:
+        return {**_failed(job, result.get("reason", "unknown"), parent), **result}
+    return result
+
+
+def _drive(pending, stored, store, pool, summary, progress):
+    if progress:
+        progress(summary, [])
+    try:
+        while pending or pool.running_labels():
+            # Jobs whose parent failed are failures too (recorded, so a --retry-failed rerun picks them up).
+            for job in [j for j in pending if j.parent and stored.get(j.parent) == "failed"]:
+                pending.remove(job)
+                _finish(job, _failed(job, "parent job failed", None), store, stored, summary)
+            ready = [j for j in pending if not j.parent or stored.get(j.parent) == "done"]
+            while ready and pool.free_slots() > 0:
+                job = ready.pop(0)
+                pending.remove(job)
+                pool.submit(job, store.get(job.parent) if job.parent else None)
             if progress:
-                progress(summary, [r.job.label for r in running])
-
-
-def _parent_of(job, store):
-    return store.get(job.parent) if job.parent else None
+                progress(summary, pool.running_labels())
+            for job, result in pool.collect(_POLL_S):
+                summary.ran += 1
+                _finish(job, result, store, stored, summary)
+                if progress:
+                    progress(summary, pool.running_labels())
+    finally:
+        pool.close()
 
 
 def _finish(job, result, store, stored, summary):
