@@ -17,9 +17,11 @@ keeps the symmetry. A free relaxation starts from the given geometry with every 
 small fixed pseudo-random amount: from the ideal square a free SP-4 [NiCl4]2- triplet otherwise
 stays on the square saddle point (measured: tau4 = 0.000). A held relaxation starts with each donor
 moved along its own M–L axis (no L–M–L angle changes): a Jahn–Teller-active state such as the T-4
-d8 triplet otherwise keeps four equal bonds from an ideal start but distorts from a pre-relaxed one
-(measured with PBE/def2-SVP: end points 1.1 kJ/mol apart), and the end point would depend on where
-the relaxation began. Both displacements are at most ``NUDGE_ANGSTROM`` and the same in every run.
+d8 triplet otherwise keeps four equal bonds from an ideal start. The displacements are at most
+``NUDGE_ANGSTROM`` and the same in every run. The Jahn–Teller surface stays flat with more than one
+stationary point, so such end points still depend a little on the start (measured, PBE/def2-SVP held
+T-4 [NiCl4]2- triplet: Ni–Cl 2.307–2.355 Å from the ideal start, 2.313–2.386 Å and 1.1 kJ/mol lower
+from the GFN2-xTB pre-relaxed one; benchmarks/prerelax).
 (Displacing a held start off its angles and letting geomeTRIC restore them fails: near-linear trans
 angles make geomeTRIC rebuild its coordinates, which it cannot do in a constrained optimisation.)
 
