@@ -107,9 +107,19 @@ class _Builder:
         return key
 
 
+# Solvents of data/solvents.toml that tblite's parametrised ALPB does not know by name: these go to xTB as
+# their dielectric constant (non-empirical ALPB) instead.
+_XTB_UNNAMED_SOLVENTS = ("n,n-dimethylformamide", "carbon tetrachloride", "pyridine")
+
+
 def geometry_engine(level) -> dict:
     """Engine settings of the GFN2-xTB relaxations (screen level, pre-relaxer, quick geometries)."""
-    return {"method": "xtb", "solvent": level.solvent, "spin_polarization": True}
+    solvent = level.solvent
+    if solvent in _XTB_UNNAMED_SOLVENTS:
+        from ..compute.levels import solvent_epsilon
+
+        solvent = solvent_epsilon(solvent)
+    return {"method": "xtb", "solvent": solvent, "spin_polarization": True}
 
 
 def _dft_engine(level, basis: str) -> dict:
