@@ -106,7 +106,8 @@ def _progress_printer(quiet: bool):
     return progress, update
 
 
-def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_json, timeout_s=None, single=False):
+def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_json, timeout_s=None, single=False,
+                    store_url=None, pool_factory=None):
     from .report.text import run_summary_text
     from .study.runner import run_study
 
@@ -114,13 +115,18 @@ def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_js
     if progress:
         with progress:
             summary = run_study(study, out_dir, workers=workers, threads=threads, retry_failed=retry_failed,
-                                timeout_s=timeout_s, progress=update)
+                                timeout_s=timeout_s, progress=update, store_url=store_url, pool_factory=pool_factory)
     else:
         summary = run_study(study, out_dir, workers=workers, threads=threads, retry_failed=retry_failed,
-                            timeout_s=timeout_s)
-    from .report.comparison import comparison_for_folder
+                            timeout_s=timeout_s, store_url=store_url, pool_factory=pool_factory)
+    from .report.comparison import build_comparison, comparison_for_folder
 
-    comparison = comparison_for_folder(out_dir, study)
+    if store_url:
+        from .study.store import ResultStore
+
+        comparison = build_comparison(study, {r["job_key"]: r for r in ResultStore(store_url).results()})
+    else:
+        comparison = comparison_for_folder(out_dir, study)
     if as_json:
         data = comparison.as_dict()
         click.echo(json.dumps(data["complexes"][0] if single else data, indent=2, ensure_ascii=False))
@@ -155,7 +161,17 @@ def _with_run_options(function):
 @click.option("--formula", help="Run one complex without a recipe, e.g. '[NiCl4]2-'.")
 @click.option("--level", default="screen", show_default=True, help="Level for --formula: screen, quick or standard.")
 @_with_run_options
-def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json):
+@click.option("--scheduler", metavar="tcp://HOST:PORT",
+              help="Run the jobs on the Dask scheduler there (its workers replace --workers; extra: cluster).")
+@click.option("--cluster", "cluster_kind", type=click.Choice(["slurm", "pbs"]),
+              help="Start Dask workers as SLURM or PBS batch jobs sized by the recipe's [cluster] table.")
+@click.option("--cluster-config", type=click.Path(dir_okay=False),
+              help="A TOML file with the [cluster] table (cores, memory, walltime, queue, account, jobs) to use "
+                   "instead of the recipe's.")
+@click.option("--store", "store_url", metavar="postgresql://USER@HOST:PORT/DB",
+              help="Keep the results in PostgreSQL instead of results.db in the study folder (extra: postgres).")
+def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, scheduler,
+        cluster_kind, cluster_config, store_url):
     """Run the study in RECIPE (a .toml file), or every state of one --formula; then print the comparison.
 
     Rerunning the same command resumes: finished jobs are never recomputed."""
@@ -165,10 +181,33 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
 
     if bool(recipe) == bool(formula):
         raise InputError("give either a RECIPE file or --formula FORMULA (with --level), not both or neither")
+    if store_url and not store_url.startswith(("postgresql://", "postgres://")):
+        raise InputError("--store takes a postgresql://USER@HOST:PORT/DB address; leave it out to keep results.db "
+                         "in the study folder")
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
     default_name = Path(recipe).stem if recipe else _folder_name(study.complexes[0].complex.formula, level)
     _run_and_report(study, out_dir or Path("outputs") / default_name, workers, threads, retry_failed, quiet,
-                    as_json, timeout_s, single=bool(formula))
+                    as_json, timeout_s, single=bool(formula), store_url=store_url,
+                    pool_factory=_cluster_pool(study, threads, scheduler, cluster_kind, cluster_config))
+
+
+def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
+    """The executor for --scheduler / --cluster (None: the local pool). Dask is imported only when used."""
+    if scheduler and cluster_kind:
+        raise InputError("give --scheduler (a running Dask scheduler) or --cluster (start one), not both")
+    if cluster_config and not cluster_kind:
+        raise InputError("--cluster-config sizes batch jobs: add --cluster slurm or --cluster pbs")
+    if not (scheduler or cluster_kind):
+        return None
+    from .study.cluster import load_cluster_file, pool_factory
+
+    settings = None
+    if cluster_kind:
+        settings = load_cluster_file(cluster_config) if cluster_config else study.cluster
+        if not settings:
+            raise InputError(f"--cluster {cluster_kind} needs a [cluster] table (cores, memory, walltime): add one to "
+                             "the recipe or give --cluster-config FILE")
+    return pool_factory(threads, scheduler=scheduler, cluster_kind=cluster_kind, cluster_settings=settings)
 
 
 def _folder_name(formula: str, level: str) -> str:

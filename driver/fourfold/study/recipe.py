@@ -28,11 +28,20 @@ estimate = { "Cl.e_sigma" = 4000 }   # optional per-complex overrides
 metal = "Ni"
 oxidation_state = 2
 ligands = ["Cl", "Cl", "PMe3", "PMe3"]
+
+[cluster]                            # optional: batch jobs for `fourfold run --cluster slurm|pbs`
+cores = 16                           # cores per batch job (fourfold runs cores // --threads jobs in each)
+memory = "32GB"                      # memory per batch job
+walltime = "12:00:00"
+queue = "chem"                       # optional
+account = "proj42"                   # optional
+jobs = 4                             # optional: batch jobs to start (default 1)
 ```
 """
 
 from __future__ import annotations
 
+import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -44,10 +53,15 @@ from ..geometry.polyhedra import ARRANGEMENTS
 
 RELAXATION_KINDS = ("held", "free")
 _TOP_KEYS = {"title", "level", "solvent", "arrangements", "relaxations", "path_points", "estimate", "ligands",
-             "complex", "run"}
+             "complex", "run", "cluster"}
 _COMPLEX_KEYS = {"formula", "metal", "oxidation_state", "ligands", "charge", "spins", "arrangements", "estimate", "name"}
 _LIGAND_KEYS = {"xyz", "donor_index", "charge", "f", "pi_ratio", "h", "repulsion_cm", "label", "distance_angstrom"}
 _RUN_KEYS = {"workers", "timeout_s", "max_steps", "threads"}
+_CLUSTER_REQUIRED = {"cores", "memory", "walltime"}
+_CLUSTER_KEYS = _CLUSTER_REQUIRED | {"queue", "account", "jobs"}
+# What SLURM and PBS both read: a size with a unit ("32GB", "64 GiB") and [D-]HH:MM[:SS].
+_MEMORY = re.compile(r"^\d+(\.\d+)?\s*[kKMGT]i?B$")
+_WALLTIME = re.compile(r"^(\d+-)?\d{1,3}:\d{2}(:\d{2})?$")
 
 
 @dataclass(frozen=True)
@@ -69,6 +83,7 @@ class Study:
     run: dict
     source_path: str
     source_text: str
+    cluster: dict = field(default_factory=dict)  # [cluster]: batch jobs for --cluster; not part of any job key
 
 
 def _fail(path: str, where: str, message: str) -> InputError:
@@ -183,6 +198,28 @@ def _level(path, value):
     raise _fail(path, "level", f"must be a preset name (screen, quick, standard) or a [level] table, got {value!r}")
 
 
+def cluster_settings(path, table) -> dict:
+    """A validated [cluster] table (batch-job size for dask-jobqueue), with jobs defaulting to 1."""
+    _expect(path, "cluster", table, dict, "a [cluster] table with cores, memory and walltime")
+    _unknown_keys(path, "cluster", table, _CLUSTER_KEYS)
+    missing = sorted(_CLUSTER_REQUIRED - set(table))
+    if missing:
+        raise _fail(path, "cluster", f"missing '{missing[0]}' (a [cluster] table needs cores, memory and walltime, "
+                                     "e.g. cores = 16, memory = \"32GB\", walltime = \"12:00:00\")")
+    for key in ("cores", "jobs"):
+        if key in table and _expect(path, f"cluster.{key}", table[key], int, "a positive integer") <= 0:
+            raise _fail(path, f"cluster.{key}", f"must be positive, got {table[key]}")
+    for key in ("memory", "walltime", "queue", "account"):
+        if key in table:
+            _expect(path, f"cluster.{key}", table[key], str, "a string")
+    if not _MEMORY.match(table["memory"]):
+        raise _fail(path, "cluster.memory", f"must be a size with a unit such as \"32GB\" or \"64GiB\", got "
+                                            f"{table['memory']!r}")
+    if not _WALLTIME.match(table["walltime"]):
+        raise _fail(path, "cluster.walltime", f"must be HH:MM:SS (or D-HH:MM:SS), got {table['walltime']!r}")
+    return {"jobs": 1, **table}
+
+
 def parse_recipe(text: str, path: str = "<recipe>") -> Study:
     """Validate a recipe's text and return the Study it describes."""
     try:
@@ -229,8 +266,9 @@ def parse_recipe(text: str, path: str = "<recipe>") -> Study:
     for key, value in run.items():
         if _expect(path, f"run.{key}", value, (int, float) if key == "timeout_s" else int, "a positive number") <= 0:
             raise _fail(path, f"run.{key}", f"must be positive, got {value}")
+    cluster = cluster_settings(path, data["cluster"]) if "cluster" in data else {}
     return Study(title, level, arrangements, tuple(dict.fromkeys(relaxations)), path_points, tuple(entries), run,
-                 path, text)
+                 path, text, cluster)
 
 
 def load_recipe(path) -> Study:

@@ -9,9 +9,12 @@ with a single writer it protects nothing (the run lock in fourfold.study.runner 
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import numpy as np
+
+from ..errors import InputError
 
 _COLUMNS = {"task": "task", "arrangement": "arrangement", "isomer": "isomer", "spin2s": "spin2s", "kind": "kind",
             "complex_formula": "formula"}
@@ -40,13 +43,41 @@ def _initialised_sqlite(path: Path) -> str:
     return str(path)
 
 
+def _redacted(url: str) -> str:
+    """A database URL without its password, for messages."""
+    return re.sub(r"(://[^:/@]+):[^@]*@", r"\1:***@", url)
+
+
+def _connected_postgres(url: str):
+    """An ASE database on a PostgreSQL server (through ase-db-backends), its tables made if new.
+
+    Each write is one transaction, so a driver killed mid-write leaves no half row; nothing like SQLite's
+    temporary-file dance is needed."""
+    from ase.db import connect
+
+    try:
+        import ase_db_backends.postgresql  # noqa: F401  (ASE finds the backend there)
+        import psycopg2
+    except ImportError:
+        raise InputError("--store postgresql://… needs the postgres extra: pip install \"fourfold[postgres]\"") from None
+    db = connect(url)
+    try:
+        db.count()  # connects, and creates the tables on first use
+    except psycopg2.Error as error:
+        first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
+        raise InputError(f"cannot use the PostgreSQL store {_redacted(url)} ({first}); check host, port, user, "
+                         "password (~/.pgpass or PGPASSWORD) and that the database exists") from None
+    return db
+
+
 class ResultStore:
     def __init__(self, url_or_path):
         from ase.db import connect
 
         text = str(url_or_path)
         if text.startswith(("postgresql://", "postgres://")):
-            self._db = connect(text)
+            self._db = _connected_postgres(text)
+            text = _redacted(text)
         else:
             self._db = connect(_initialised_sqlite(Path(text)), type="db", use_lock_file=False)
         self.location = text
