@@ -133,6 +133,9 @@ def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_js
     else:
         click.echo(comparison.text())
         click.echo(run_summary_text(summary, out_dir))
+    from .report.render import write_report
+
+    click.echo(write_report(out_dir, study).summary_line(), err=as_json)
     return summary
 
 
@@ -231,6 +234,23 @@ def demo(out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json):
                "local rules and the safety data sheets. A computed preference does not replace experiment.", err=True)
     _run_and_report(study, out_dir or Path("outputs") / "demo", workers, threads, retry_failed, quiet, as_json,
                     timeout_s)
+
+
+@main.command()
+@click.argument("folder", type=click.Path(file_okay=False, exists=True))
+@click.option("--units", "unit", type=click.Choice(("kj", "kcal", "ev", "cm"), case_sensitive=False), default="kj",
+              show_default=True, help="Energy unit of the tables and figures (kJ/mol, kcal/mol, eV, cm-1).")
+@click.option("--format", "formats", multiple=True, type=click.Choice(("csv", "md", "tex", "json")),
+              help="Table format to write (repeatable; default all). Figures and structures are always written.")
+def report(folder, unit, formats):
+    """Tables, figures and extended XYZ structures of a study FOLDER, from its results.db; prints the summary.
+
+    Writes FOLDER/tables, FOLDER/figures (PDF, SVG, 300 dpi PNG) and FOLDER/structures."""
+    from .report.render import write_report
+    from .report.text import report_text
+
+    click.echo(report_text(write_report(folder, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"))),
+               nl=False)
 
 
 @main.command()

@@ -40,9 +40,12 @@ class StateRecord:
     cycles: int | None = None
     steps: int | None = None
     d_levels_cm: list | None = None
-    fitted_e_sigma_cm: float | None = None
-    fitted_e_pi_cm: float | None = None
+    fitted_e_sigma_cm: dict | None = None  # ligand name -> AOM e_σ fitted to the projected d block
+    fitted_e_pi_cm: dict | None = None
     wall_seconds: float | None = None
+    d_level_labels: list | None = None
+    fit_tied_pi: bool | None = None
+    trans_angle_deg: float | None = None  # path points only
     job_key: str | None = None
     warnings: list = field(default_factory=list)
 
@@ -58,6 +61,7 @@ class ComplexComparison:
     records: list[StateRecord]
     estimate: object  # fourfold.field.estimate.Estimate
     level: str
+    path_records: list[StateRecord] = field(default_factory=list)  # held relaxations along the D2d path
 
     def held_or_free(self) -> list[StateRecord]:
         """Records that define a state's energy: held relaxations where the study has them, else free."""
@@ -83,6 +87,20 @@ class ComplexComparison:
 
     def estimated_delta_kj_mol(self) -> dict[int, float]:
         return {s: convert_energy(v, "cm", "kj") for s, v in self.estimate.delta_sp_t_cm().items()}
+
+    def lowest_delta_sp_t_kj_mol(self) -> float | None:
+        """Computed E(lowest SP-4 state) − E(lowest T-4 state), any spin: the number that decides the shape."""
+        records = self.held_or_free()
+        sp = [r.relative_kj_mol for r in records if r.arrangement == "SP-4"]
+        t = [r.relative_kj_mol for r in records if r.arrangement == "T-4"]
+        return min(sp) - min(t) if sp and t else None
+
+    def estimated_lowest_delta_sp_t_kj_mol(self) -> float | None:
+        arrangements = {s.arrangement for s in self.estimate.states}
+        if not {"SP-4", "T-4"} <= arrangements:
+            return None
+        lowest = {a: min(s.energy_cm for s in self.estimate.states if s.arrangement == a) for a in ("SP-4", "T-4")}
+        return convert_energy(lowest["SP-4"] - lowest["T-4"], "cm", "kj")
 
     def agrees(self) -> bool | None:
         ground = self.computed_ground
@@ -112,13 +130,14 @@ class Comparison:
                 "agree": c.agrees(),
                 "delta_sp_minus_t_kj_mol": {str(k): v for k, v in c.delta_sp_t_kj_mol().items()},
                 "estimate_delta_sp_minus_t_kj_mol": {str(k): v for k, v in c.estimated_delta_kj_mol().items()},
+                "path": [{k: v for k, v in asdict(r).items() if k != "warnings"} for r in c.path_records],
             })
         return out
 
-    def text(self) -> str:
+    def text(self, unit: str = "kj") -> str:
         from .text import comparison_text
 
-        return comparison_text(self)
+        return comparison_text(self, unit)
 
 
 def build_comparison(study, results_by_key: dict) -> Comparison:
@@ -126,41 +145,62 @@ def build_comparison(study, results_by_key: dict) -> Comparison:
     from ..field.estimate import estimate
     from ..study.jobs import expand
 
-    final_jobs = [j for j in expand(study) if j.final and j.spec["arrangement"] != "path"]
+    all_final = [j for j in expand(study) if j.final]
+    final_jobs = [j for j in all_final if j.spec["arrangement"] != "path"]
+    path_jobs = [j for j in all_final if j.spec["arrangement"] == "path"]
     warnings = []
     complexes = []
     for entry in study.complexes:
         cx = entry.complex
         est = estimate(cx, entry.arrangements, entry.estimate_overrides, spins=entry.spins)
-        records = []
-        for job in (j for j in final_jobs if j.spec["formula"] == cx.formula):
-            s = job.spec
-            result = results_by_key.get(job.key)
-            record = StateRecord(cx.formula, s["arrangement"], s["isomer"], s["spin2s"], s["kind"],
-                                 status="pending" if result is None else result["status"], engine=s["engine"]["method"],
-                                 job_key=job.key)
-            record.estimate_kj_mol = est.state(s["arrangement"], s["spin2s"], s["isomer"]).energy_kj_mol
-            if result is not None:
-                for name in ("energy_hartree", "converged", "reason", "tau4", "tau4_prime", "nearest_shape", "s2",
-                             "s2_expected", "spin_contaminated", "broken_symmetry", "rung", "cycles", "steps",
-                             "d_levels_cm", "fitted_e_sigma_cm", "fitted_e_pi_cm", "wall_seconds"):
-                    if result.get(name) is not None:
-                        setattr(record, name, result[name])
-                record.warnings = list(result.get("warnings", []))
-                for w in record.warnings:
-                    if w not in warnings:
-                        warnings.append(w)
-            records.append(record)
+        records = [_record(cx.formula, job, results_by_key.get(job.key), est, warnings)
+                   for job in final_jobs if job.spec["formula"] == cx.formula]
+        path_records = [_record(cx.formula, job, results_by_key.get(job.key), None, warnings)
+                        for job in path_jobs if job.spec["formula"] == cx.formula]
         done = [r for r in records if r.status == "done" and r.energy_hartree is not None]
-        if done:
-            lowest = min(r.energy_hartree for r in done)
-            for r in done:
-                r.relative_kj_mol = convert_energy(r.energy_hartree - lowest, "hartree", "kj")
+        lowest = min(r.energy_hartree for r in done) if done else None
+        for r in done:
+            r.relative_kj_mol = convert_energy(r.energy_hartree - lowest, "hartree", "kj")
+        _relative_path_energies(path_records, lowest)
         if cx.charge <= -2 and study.level.method != "xtb" and study.level.solvent is None:
             warnings.append(f"{cx.formula} is a {abs(cx.charge)}− anion computed in the gas phase: its outer "
                             "electrons may be unbound; prefer a solvent (C-PCM) for final numbers.")
-        complexes.append(ComplexComparison(cx.formula, cx.d_electrons, records, est, study.level.name))
+        complexes.append(ComplexComparison(cx.formula, cx.d_electrons, records, est, study.level.name, path_records))
     return Comparison(study.title, study.level.name, complexes, warnings)
+
+
+_RESULT_FIELDS = ("energy_hartree", "converged", "reason", "tau4", "tau4_prime", "nearest_shape", "s2", "s2_expected",
+                  "spin_contaminated", "broken_symmetry", "rung", "cycles", "steps", "d_levels_cm", "d_level_labels",
+                  "fitted_e_sigma_cm", "fitted_e_pi_cm", "fit_tied_pi", "wall_seconds")
+
+
+def _record(formula: str, job, result: dict | None, est, warnings: list) -> StateRecord:
+    """One job's row; ``est`` (the complex's Estimate) fills estimate_kj_mol, None for path points."""
+    s = job.spec
+    record = StateRecord(formula, s["arrangement"], s["isomer"], s["spin2s"], s["kind"],
+                         status="pending" if result is None else result["status"], engine=s["engine"]["method"],
+                         job_key=job.key, trans_angle_deg=s.get("trans_angle_deg"))
+    if est is not None:
+        record.estimate_kj_mol = est.state(s["arrangement"], s["spin2s"], s["isomer"]).energy_kj_mol
+    if result is not None:
+        for name in _RESULT_FIELDS:
+            if result.get(name) is not None:
+                setattr(record, name, result[name])
+        record.warnings = list(result.get("warnings", []))
+        for w in record.warnings:
+            if w not in warnings:
+                warnings.append(w)
+    return record
+
+
+def _relative_path_energies(path_records: list[StateRecord], lowest_hartree: float | None) -> None:
+    """Path energies on the same zero as the states (the complex's lowest state), else the path's lowest."""
+    done = [r for r in path_records if r.status == "done" and r.energy_hartree is not None]
+    if not done:
+        return
+    zero = lowest_hartree if lowest_hartree is not None else min(r.energy_hartree for r in done)
+    for r in done:
+        r.relative_kj_mol = convert_energy(r.energy_hartree - zero, "hartree", "kj")
 
 
 def comparison_for_folder(out_dir, study) -> Comparison:

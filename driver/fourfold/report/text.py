@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from ..chem.complex import spin_label
-from ..units import cm_to_kj_mol
+from ..units import UNIT_LABELS, canonical_unit, cm_to_kj_mol, convert_energy
 
 
 def _table(headers: list[str], rows: list[list[str]], right: set[int] | None = None) -> str:
@@ -78,12 +78,23 @@ def _number(value, digits=1, empty="—"):
     return empty if value is None else f"{value:.{digits}f}"
 
 
-def comparison_text(comparison) -> str:
+def _in_unit(value_kj_mol, unit: str):
+    return None if value_kj_mol is None else convert_energy(value_kj_mol, "kj", unit)
+
+
+# shown digits per energy unit (about 0.1 kJ/mol everywhere) and the unit as a table header writes it
+UNIT_DIGITS = {"kj_mol": 1, "kcal_mol": 1, "ev": 3, "cm": 0, "hartree": 5}
+UNIT_HEADERS = {"kj_mol": "kJ mol⁻¹", "kcal_mol": "kcal mol⁻¹", "ev": "eV", "cm": "cm⁻¹", "hartree": "Eh"}
+
+
+def comparison_text(comparison, unit: str = "kj") -> str:
     """Per complex: every state with computed and estimated relative energies, then the verdicts."""
+    unit = canonical_unit(unit)
+    digits, header, label = UNIT_DIGITS[unit], UNIT_HEADERS[unit], UNIT_LABELS[unit]
     out = [f"{comparison.title} — level {comparison.level}", ""]
     for c in comparison.complexes:
         out.append(f"{c.formula}  (d{c.d_electrons})")
-        headers = ["state", "spin", "relax", "ΔE calc / kJ mol⁻¹", "ΔE est / kJ mol⁻¹", "tau4", "shape", "⟨S²⟩",
+        headers = ["state", "spin", "relax", f"ΔE calc / {header}", f"ΔE est / {header}", "tau4", "shape", "⟨S²⟩",
                    "conv", "note"]
         rows = []
         order = {"T-4": 0, "SP-4": 1, "SS-4": 2, "vTBPY-4": 3}
@@ -96,7 +107,8 @@ def comparison_text(comparison) -> str:
             elif r.spin_contaminated:
                 note = "spin contaminated"
             s2 = "—" if r.s2 is None else f"{r.s2:.2f}"
-            rows.append([r.name, spin_label(r.spin2s), r.kind, _number(r.relative_kj_mol), _number(r.estimate_kj_mol),
+            rows.append([r.name, spin_label(r.spin2s), r.kind, _number(_in_unit(r.relative_kj_mol, unit), digits),
+                         _number(_in_unit(r.estimate_kj_mol, unit), digits),
                          _number(r.tau4, 2), r.nearest_shape or "—", s2,
                          "—" if r.converged is None else ("yes" if r.converged else "no"), note[:60]])
         out.append(_table(headers, rows, right={3, 4, 5, 7}))
@@ -107,9 +119,10 @@ def comparison_text(comparison) -> str:
         out.append(f"ground state: computed {calc}; estimated {est}{verdict}")
         calc_delta, est_delta = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
         for spin2s in sorted(set(calc_delta) | set(est_delta)):
-            a, b = calc_delta.get(spin2s), est_delta.get(spin2s)
-            diff = "" if a is None or b is None else f", difference {a - b:+.1f}"
-            out.append(f"ΔE(SP-4 − T-4) {spin_label(spin2s)}: computed {_number(a)} kJ/mol, estimated {_number(b)} kJ/mol{diff}")
+            a, b = _in_unit(calc_delta.get(spin2s), unit), _in_unit(est_delta.get(spin2s), unit)
+            diff = "" if a is None or b is None else f", difference {a - b:+.{digits}f}"
+            out.append(f"ΔE(SP-4 − T-4) {spin_label(spin2s)}: computed {_number(a, digits)} {label}, "
+                       f"estimated {_number(b, digits)} {label}{diff}")
         out.append("")
     for warning in comparison.warnings:
         out.append(f"note: {warning}")
@@ -131,3 +144,24 @@ def status_text(found: dict) -> str:
     for failure in found["failures"]:
         lines.append(f"  failed: {failure['label']} [{failure['task']}] — {failure['reason']}")
     return "\n".join(lines)
+
+
+def report_text(report) -> str:
+    """What `fourfold report` prints: the comparison, one summary line per complex, where the files went."""
+    from .tables import summary_table
+
+    unit = report.unit
+    table = summary_table(report.comparison, unit)
+    headers = ["complex", "dⁿ", "ground (calc)", "ground (est)", "agree", f"ΔE calc / {UNIT_HEADERS[unit]}",
+               f"ΔE est / {UNIT_HEADERS[unit]}", "tau4"]
+    keys = [c.key for c in table.columns[:8]]
+    digits = UNIT_DIGITS[unit]
+    rows = []
+    for row in table.rows:
+        agree = row["agree"]
+        rows.append([row["formula"], str(row["d_electrons"]), row["computed_ground"] or "—", row["estimated_ground"],
+                     "—" if agree is None else ("yes" if agree else "NO"), _number(row[keys[5]], digits),
+                     _number(row[keys[6]], digits), _number(row["tau4_ground"], 2)])
+    summary = ("Summary (ΔE = lowest SP-4 state − lowest T-4 state; positive: tetrahedral)\n"
+               + _table(headers, rows, right={1, 5, 6, 7}))
+    return "\n".join([comparison_text(report.comparison, unit), summary, "", report.summary_line()]) + "\n"

@@ -1,0 +1,137 @@
+"""A study folder's report, written from its store: tables/, figures/ and structures/.
+
+    tables/      summary, deltas, states, ligand_field, path (.csv, tidy); report.md; one .tex per table and a
+                 report.tex that inputs them all; report.json
+    figures/     ladder_<complex>, d_levels_<complex>, path_<complex> (with path points), parity; each as .pdf,
+                 .svg and 300 dpi .png
+    structures/  the final structure of every finished state as extended XYZ (energy, 2S, arrangement, … in
+                 the comment line)
+
+It can be written again at any time (`fourfold report DIR`); every file is replaced whole.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..errors import InputError
+from ..units import UNIT_LABELS, canonical_unit, convert_energy
+from . import tables as tab
+
+
+@dataclass
+class Report:
+    folder: Path
+    unit: str
+    comparison: object
+    tables: list[Path] = field(default_factory=list)
+    figures: list[Path] = field(default_factory=list)
+    structures: list[Path] = field(default_factory=list)
+
+    def summary_line(self) -> str:
+        return (f"report: {len(self.tables)} table files in {self.folder / 'tables'}, {len(self.figures)} figure files "
+                f"in {self.folder / 'figures'}, {len(self.structures)} structures in {self.folder / 'structures'}")
+
+
+def folder_study(folder):
+    """The study a folder was run with (its copy of the recipe)."""
+    from ..study.recipe import parse_recipe
+
+    recipe = Path(folder) / "recipe.toml"
+    if not recipe.exists():
+        raise InputError(f"{folder} is not a study folder (no recipe.toml): run `fourfold run RECIPE --out {folder}` "
+                         "first")
+    return parse_recipe(recipe.read_text(encoding="utf-8"), str(recipe))
+
+
+def _write_text(path: Path, text: str) -> Path:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    partial = path.with_name(f".{path.name}.partial")
+    partial.write_text(text, encoding="utf-8")
+    os.replace(partial, path)
+    return path
+
+
+def write_tables(comparison, folder: Path, unit: str, formats=tab.FORMATS) -> list[Path]:
+    tables = tab.study_tables(comparison, unit)
+    written = []
+    if "csv" in formats:
+        written += [_write_text(folder / f"{t.name}.csv", tab.to_csv(t)) for t in tables if t.tidy]
+    shown = [t for t in tables if t.display]
+    if "md" in formats:
+        written.append(_write_text(folder / "report.md", tab.markdown_report(shown, comparison, unit)))
+    if "tex" in formats:
+        written += [_write_text(folder / f"{t.name}.tex", tab.to_latex(t)) for t in shown]
+        written.append(_write_text(folder / "report.tex",
+                                   tab.latex_document(shown, comparison.title, [t.name for t in shown])))
+    if "json" in formats:
+        written.append(_write_text(folder / "report.json", tab.to_json(tables, comparison, unit)))
+    return written
+
+
+def write_figures(comparison, folder: Path, unit: str) -> list[Path]:
+    from .figures import save_figure, study_figures
+
+    written = []
+    for name, fig in study_figures(comparison, unit).items():
+        written += save_figure(fig, folder / name)
+    return written
+
+
+def write_structures(comparison, results_by_key: dict, folder: Path, unit: str) -> list[Path]:
+    """Final structure of every finished state, its numbers in the extended XYZ comment line."""
+    from ase import Atoms
+
+    from ..compute.xtb_engine import XTB_SPIN_WARNING
+    from .export import structure_filename, write_extxyz
+
+    suffix = tab.unit_suffix(unit)
+    written = []
+    for c in comparison.complexes:
+        for r in c.records:
+            result = results_by_key.get(r.job_key)
+            if r.status != "done" or result is None or r.energy_hartree is None:
+                continue
+            atoms = Atoms(symbols=result["symbols"], positions=result["positions_angstrom"])
+            atoms.info.update({
+                "formula": c.formula, "arrangement": r.arrangement, "isomer": r.isomer, "spin2s": r.spin2s,
+                "multiplicity": r.spin2s + 1, "relaxation": r.kind, "energy_hartree": r.energy_hartree,
+                f"relative_energy_{suffix}": convert_energy(r.relative_kj_mol, "kj", unit),
+                "level": c.level, "engine": r.engine, "converged": bool(r.converged),
+                "tau4": r.tau4, "nearest_shape": r.nearest_shape, "job_key": r.job_key,
+            })
+            if r.engine == "xtb":
+                atoms.info["caveat"] = XTB_SPIN_WARNING
+            # ASE writes an empty string as `key=` and reads it back as the next pair: leave empty values out
+            atoms.info = {k: v for k, v in atoms.info.items() if v is not None and v != ""}
+            name = structure_filename(atoms, suffix=f"2S{r.spin2s}_{r.kind}")
+            written.append(write_extxyz(atoms, folder / name))
+    return written
+
+
+def write_report(folder, study=None, unit: str = "kj", formats=tab.FORMATS, store_url: str | None = None) -> Report:
+    """Write tables, figures and structures for a study folder; the study defaults to the folder's recipe and
+    the results to the folder's results.db (``store_url`` names another store, e.g. PostgreSQL)."""
+    from ..study.store import ResultStore
+    from .comparison import build_comparison
+
+    folder = Path(folder)
+    unit = canonical_unit(unit)
+    if unit not in {canonical_unit(u) for u in tab.ENERGY_UNITS}:
+        raise InputError(f"report units must be one of {', '.join(tab.ENERGY_UNITS)}, got {UNIT_LABELS[unit]}")
+    unknown = [f for f in formats if f not in tab.FORMATS]
+    if unknown:
+        raise InputError(f"unknown table format {unknown[0]!r}: use {', '.join(tab.FORMATS)}")
+    study = study if study is not None else folder_study(folder)
+    if store_url is None and not (folder / "results.db").exists():
+        raise InputError(f"{folder} is not a study folder (no results.db): run `fourfold run RECIPE --out {folder}` "
+                         "first")
+    results = {r["job_key"]: r for r in ResultStore(store_url or folder / "results.db").results()}
+    comparison = build_comparison(study, results)
+    report = Report(folder, unit, comparison)
+    report.tables = write_tables(comparison, folder / "tables", unit, formats)
+    report.figures = write_figures(comparison, folder / "figures", unit)
+    report.structures = write_structures(comparison, results, folder / "structures", unit)
+    return report
