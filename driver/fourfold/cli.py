@@ -135,7 +135,7 @@ def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_js
         click.echo(run_summary_text(summary, out_dir))
     from .report.render import write_report
 
-    click.echo(write_report(out_dir, study).summary_line(), err=as_json)
+    click.echo(write_report(out_dir, study, store_url=store_url).summary_line(), err=as_json)
     return summary
 
 
