@@ -227,12 +227,15 @@ def _start_own_server(folder: Path):
 
 
 @pytest.fixture(scope="module")
-def postgres_server(tmp_path_factory):
+def postgres_server():
     pytest.importorskip("psycopg2", reason="the postgres extra is not installed: pip install -e '.[test]'")
     url, stop = os.environ.get("FOURFOLD_TEST_POSTGRES"), None
+    # Not under pytest's tmp folders: the server's user must be able to reach its data folder.
+    own = Path(f"/tmp/fourfold-test-pg-{uuid.uuid4().hex[:8]}")
     if not url:
-        url, stop = _start_own_server(Path(f"/tmp/fourfold-test-pg-{uuid.uuid4().hex[:8]}"))
+        url, stop = _start_own_server(own)
     if not url:
+        shutil.rmtree(own, ignore_errors=True)
         pytest.skip("no PostgreSQL server: FOURFOLD_TEST_POSTGRES is unset and none could be started from "
                     "/usr/lib/postgresql/*/bin (.ci/run installs Debian's postgresql and starts one)")
     try:
@@ -240,6 +243,7 @@ def postgres_server(tmp_path_factory):
     finally:
         if stop:
             subprocess.run(stop, capture_output=True)
+        shutil.rmtree(own, ignore_errors=True)
 
 
 @pytest.fixture()

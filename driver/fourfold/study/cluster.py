@@ -53,6 +53,7 @@ def job_process_main() -> None:
     from multiprocessing.connection import Connection
 
     result_pipe = Connection(os.dup(1), readable=False)
+    os.dup2(2, 1)  # stderr is the job's log already: nothing printed from here on can reach the result pipe
     if spec["engine"]["method"] != "xtb":
         from pyscf import lib
 
