@@ -54,7 +54,7 @@ def _load_complex(formula: str):
               help="Spin state as 2S (number of unpaired electrons; repeatable); default all allowed.")
 @click.option("--json", "as_json", is_flag=True, help="Print the estimate as JSON.")
 def estimate(formula, arrangements, overrides, spins, as_json):
-    """Ligand-field estimate for FORMULA, e.g. '[NiCl4]2-' (quote it in the shell)."""
+    """Ligand-field estimate for FORMULA such as '[NiCl4]2-' (quote it in the shell)."""
     from .field.estimate import DEFAULT_ARRANGEMENTS, estimate as run_estimate, parse_overrides
     from .report.text import estimate_text
 
