@@ -218,9 +218,10 @@ def test_every_figure_file_is_written_at_print_resolution(studies):
         assert (folder / f"{name}.pdf").read_bytes()[:5] == b"%PDF-"
         assert b"<svg" in (folder / f"{name}.svg").read_bytes()[:2000]
         with Image.open(folder / f"{name}.png") as image:
-            # 300 dpi and at most two journal columns (178 mm) wide: common practice, no source
+            # 300 dpi, one journal column (85 mm) or two (178 mm) wide: common practice, no source
             assert image.info["dpi"] == pytest.approx((300, 300), abs=0.5)
-            assert image.width <= 178 / 25.4 * 300 + 2
+            columns_mm = 178 if name.startswith("d_levels") else 85
+            assert image.width <= columns_mm / 25.4 * 300 + 2
     assert (folder / "ladder_NiCl4_2-.png").stat().st_size > 10_000
 
 
@@ -283,6 +284,10 @@ def test_run_writes_the_report_and_the_path_figure_marks_the_spin_crossing(studi
     assert {"path.csv", "summary.csv", "report.md", "report.json"} <= {p.name for p in (folder / "tables").iterdir()}
     for extension in ("pdf", "svg", "png"):
         assert (folder / "figures" / f"path_NiCl4_2-.{extension}").stat().st_size > 1000
+    from PIL import Image
+
+    with Image.open(folder / "figures" / "path_NiCl4_2-.png") as image:
+        assert image.width <= 85 / 25.4 * 300 + 2  # one journal column at 300 dpi (common practice, no source)
     rows = _read_csv(folder / "tables" / "path.csv")
     angles = sorted({float(r["trans_angle_deg"]) for r in rows})
     assert len(rows) == 6 and angles == pytest.approx([TETRAHEDRAL_DEG, (TETRAHEDRAL_DEG + 180) / 2, 180.0], abs=1e-5)

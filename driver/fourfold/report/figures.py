@@ -35,7 +35,8 @@ AGREEMENT_BAND_KJ_MOL = 10.0  # parity-plot band: typical DFT spin-state error s
 
 OKABE_ITO = {"black": "#000000", "orange": "#E69F00", "sky blue": "#56B4E9", "bluish green": "#009E73",
              "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "reddish purple": "#CC79A7"}
-_SPIN_COLOURS = {0: "blue", 1: "sky blue", 2: "vermillion", 3: "orange", 4: "bluish green", 5: "reddish purple"}
+# the light Okabe–Ito colours (sky blue, yellow) last or not at all: thin lines in them fade on white paper
+_SPIN_COLOURS = {0: "blue", 1: "bluish green", 2: "vermillion", 3: "orange", 4: "reddish purple", 5: "sky blue"}
 _SPIN_MARKERS = {0: "o", 1: "v", 2: "s", 3: "^", 4: "D", 5: "P"}
 _ISOMER_LINES = {"": "-", "trans": "-", "cis": "--"}
 _GREY = "#6b6b6b"
@@ -299,7 +300,7 @@ def _draw_levels(ax, x_centre, column: _Column, labels, occupation, colour, labe
     return texts
 
 
-def _fit_labels(ax, left_texts, right_texts, right_edge: float, pad_px: float = 3.0) -> None:
+def _fit_labels(ax, left_texts, right_texts, right_edge: float, pad_px: float = 6.0) -> None:
     """x limits just wide enough for the labels left and right of the columns, whatever the panel's width.
 
     With the panel W px wide and a label w px wide anchored at a, the limits solve
@@ -385,8 +386,9 @@ def d_levels_figure(c, columns: int | None = None):
 
 # ---- parity ---------------------------------------------------------------------------------------------
 
-def _place_labels(ax, points, texts):
-    """Put each label next to its point where it overlaps no other label, point or the axes edge."""
+def _place_labels(ax, points, texts, obstacles=()):
+    """Put each label next to its point where it overlaps no other label, point, obstacle (text artists already
+    on the axes) or the axes edge."""
     fig = ax.figure
     renderer = fig.canvas.get_renderer()
     candidates = [((5, 4), "left", "bottom"), ((5, -4), "left", "top"), ((-5, 4), "right", "bottom"),
@@ -398,7 +400,7 @@ def _place_labels(ax, points, texts):
         px, py = ax.transData.transform((x, y))
         point_boxes.append((px - 4, py - 4, px + 4, py + 4))
     axes_box = ax.get_window_extent(renderer)
-    placed = []
+    placed = [tuple(o.get_window_extent(renderer).extents) for o in obstacles]
     artists = []
     for (x, y), text in zip(points, texts):
         best = None
@@ -472,11 +474,11 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
         delta = "ΔE(SP-4 − T-4)"
         ax.set_xlabel(f"{delta}, estimate / {unit_math(unit)}")
         ax.set_ylabel(f"{delta}, computed / {unit_math(unit)}")
-        # quadrant captions next to the axes, away from the diagonal band
-        ax.text(0.98, 0.515, "both: T-4 lower", transform=ax.transAxes, ha="right", va="bottom", fontsize=6.5,
-                color=_GREY)
-        ax.text(0.02, 0.485, "both: SP-4 lower", transform=ax.transAxes, ha="left", va="top", fontsize=6.5,
-                color=_GREY)
+        # quadrant captions beside the x = 0 line at the top and bottom edges, away from the diagonal band
+        captions = [ax.text(0.52, 0.98, "both: T-4 lower", transform=ax.transAxes, ha="left", va="top", fontsize=6.5,
+                            color=_GREY),
+                    ax.text(0.48, 0.02, "both: SP-4 lower", transform=ax.transAxes, ha="right", va="bottom",
+                            fontsize=6.5, color=_GREY)]
         band_text = f"{band:.{0 if unit == 'cm' else 1}f}".rstrip("0").rstrip(".")
         handles = [Line2D([], [], color="black", ls="--", lw=0.8, label="parity"),
                    Patch(color=OKABE_ITO["sky blue"], alpha=0.35, label=f"±{band_text} {unit_math(unit)}"),
@@ -488,7 +490,7 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
                                   label="different ground state"))
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.0, -0.16), ncol=2, fontsize=6.5,
                   handlelength=1.4, columnspacing=1.0)
-        _place_labels(ax, list(zip(xs, ys)), [formula_unicode(p[0]) for p in points])
+        _place_labels(ax, list(zip(xs, ys)), [formula_unicode(p[0]) for p in points], obstacles=captions)
         notes = [XTB_NOTE] if any(_is_xtb(c.records) for c in comparison.complexes) else []
         notes += [w for w in comparison.warnings if w != XTB_SPIN_WARNING
                   and any(c.formula in w for c in comparison.complexes)]
@@ -553,12 +555,9 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
                     ax.plot(x, y, color=spin_colour(s), marker=spin_marker(s), ms=4, ls=_ISOMER_LINES.get(isomer, "-"),
                             mec="white", mew=0.4, gid=f"path:{isomer}:{s}")
         crossings = spin_crossings(c.path_records)
-        for k, crossing in enumerate(crossings):
-            y = _in_unit(crossing.relative_kj_mol, unit)
-            ax.plot(crossing.trans_angle_deg, y, marker="o", ms=8, mfc="none", mec="black", mew=0.9, ls="none",
-                    zorder=5, gid="spin-crossing")
-            ax.annotate(f"≈{crossing.trans_angle_deg:.0f}°", (crossing.trans_angle_deg, y), xytext=(0, 7 + 8 * (k % 2)),
-                        textcoords="offset points", ha="center", va="bottom", fontsize=6.5)
+        for crossing in crossings:
+            ax.plot(crossing.trans_angle_deg, _in_unit(crossing.relative_kj_mol, unit), marker="o", ms=8, mfc="none",
+                    mec="black", mew=0.9, ls="none", zorder=5, gid="spin-crossing")
         ax.set_xlabel("trans L–M–L angle / °")
         ax.set_ylabel(f"relative energy / {unit_math(unit)}")
         ax.set_xlim(105, 184.5)
@@ -574,9 +573,12 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
         if crossings:
             handles.append(Line2D([], [], marker="o", ms=7, mfc="none", mec="black", ls="none", label="spin crossing"))
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2, handlelength=1.8)
-        ax.set_title(f"{formula_unicode(c.formula)}: D$_{{2d}}$ path T-4 → SP-4 (held relaxations)", loc="left",
-                     pad=12)
+        ax.set_title(f"{formula_unicode(c.formula)}, D$_{{2d}}$ path (held relaxations)", loc="left", pad=12)
+        _place_labels(ax, [(x.trans_angle_deg, _in_unit(x.relative_kj_mol, unit)) for x in crossings],
+                      [f"≈{x.trans_angle_deg:.0f}°" for x in crossings])
         notes = _complex_notes(done, c.formula, warnings)
+        if crossings:
+            notes.append("crossings: linear interpolation between neighbouring path points")
         failed = [r for r in c.path_records if r.status != "done"]
         if failed:
             notes.append(f"{len(failed)} path point(s) not computed")
