@@ -93,6 +93,14 @@ def reference(recipe, tmp_path_factory):
     return found
 
 
+def test_start_up_imports_no_cluster_or_database_driver():
+    # the extras load only when --scheduler, --cluster or --store is used [common practice, no source]
+    code = ("import sys; from click.testing import CliRunner; from fourfold.cli import main; "
+            "r = CliRunner().invoke(main, ['run', '--help']); assert r.exit_code == 0, r.output; "
+            "print(','.join(m for m in ('dask', 'distributed', 'dask_jobqueue', 'psycopg2') if m in sys.modules))")
+    assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.strip() == ""
+
+
 # ------------------------------------------------------------------------------------------------ Dask
 
 @pytest.fixture(scope="module")
