@@ -361,3 +361,14 @@ def test_bad_cluster_table_names_file_key_and_fix(tmp_path, table, fragment):
 def test_cluster_without_table_says_what_to_add(recipe, tmp_path):
     result = fourfold("run", str(recipe), "--out", str(tmp_path / "out"), "--cluster", "slurm")
     assert result.returncode == 2 and "needs a [cluster] table" in result.stderr
+
+
+def test_cluster_without_batch_system_refuses_before_running(recipe, tmp_path):
+    # this machine has no SLURM: the run must stop at once, not wait for workers that never come
+    path = tmp_path / "with_cluster.toml"
+    path.write_text(recipe.read_text() + "\n[cluster]\ncores = 4\nmemory = '8GB'\nwalltime = '01:00:00'\n")
+    if shutil.which("sbatch"):
+        pytest.skip("sbatch exists here")
+    result = fourfold("run", str(path), "--out", str(tmp_path / "out"), "--cluster", "slurm")
+    assert result.returncode == 2 and "`sbatch` is not on PATH" in result.stderr, result.stderr
+    assert not (tmp_path / "out").exists()

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import os
 import pickle
+import shutil
 import signal
 import subprocess
 import sys
@@ -32,6 +33,7 @@ from pathlib import Path
 from ..errors import ComputeError, InputError
 from .runner import _FAULT_ENV, _child, _exit_reason, complete_failure, job_paths
 
+_SUBMIT_COMMANDS = {"slurm": "sbatch", "pbs": "qsub"}
 THREAD_ENV = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 # The scheduler fourfold starts tries a job whose worker died once more, then records it failed.
 WORKER_DEATHS_RETRIED = 1
@@ -255,6 +257,11 @@ def jobqueue_cluster(kind: str, settings: dict, threads: int, scheduler_options:
 def pool_factory(threads: int, scheduler: str | None = None, cluster_kind: str | None = None,
                  cluster_settings: dict | None = None):
     """What run_study calls to make its executor: a DaskPool on a running scheduler, or on batch jobs."""
+
+    if cluster_kind and shutil.which(_SUBMIT_COMMANDS[cluster_kind]) is None:
+        # checked before the run starts: without it the workers never come and the driver waits for ever
+        raise InputError(f"--cluster {cluster_kind}: `{_SUBMIT_COMMANDS[cluster_kind]}` is not on PATH; run fourfold "
+                         "on a login node of the batch system, or use --scheduler with workers you start")
 
     def make(out_dir, timeout_s):
         if scheduler:
