@@ -192,6 +192,9 @@ def test_markdown_json_and_latex_carry_the_xtb_caveat(studies):
         # booktabs rules, no siunitx (issue 5); pdflatex needs plain ASCII input
         assert all(rule in tex for rule in (r"\toprule", r"\midrule", r"\bottomrule")) and "siunitx" not in tex
         assert tex.isascii() and XTB_SPIN_WARNING in tex
+        # "\\" and \midrule take an optional [argument]: no row may open with "[" (L. Lamport, LaTeX: A Document
+        # Preparation System, 2nd ed. 1994, and the booktabs manual, S. Fear; from memory)
+        assert not any(line.startswith("[") for line in tex.splitlines())
 
 
 def test_latex_compiles(studies, tmp_path):
@@ -357,5 +360,5 @@ def test_formula_markup():
     assert formula_unicode("[NiCl4]2-") == "[NiCl₄]²⁻"
     assert formula_latex("[Ni(CN)4]2-") == "[Ni(CN)$_{4}$]$^{2-}$"
     assert slug("[Ni(CN)4]2-") == "NiCN4_2-"
-    # LaTeX's ten special characters (Lamport, LaTeX, 2nd ed. 1994, §2.2.1; from memory)
+    # LaTeX's ten special characters (L. Lamport, LaTeX: A Document Preparation System, 2nd ed. 1994; from memory)
     assert tex_escape("50% & $x_1$ #2 {a}") == r"50\% \& \$x\_1\$ \#2 \{a\}"

@@ -379,7 +379,8 @@ def d_levels_figure(c, columns: int | None = None):
         if not any(r for _, _, r in panels):
             notes.append(f"no projected DFT d levels at level {c.level} (GFN2-xTB has none): estimate only")
         else:
-            notes.append("DFT: d-dominated Kohn–Sham levels projected on the metal; electrons by aufbau for the state's 2S")
+            notes.append("DFT: d-dominated Kohn–Sham levels projected on the metal; electrons by aufbau for the "
+                         "state's 2S")
         _caveats(fig, notes)
     return fig
 

@@ -20,6 +20,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import re
 from dataclasses import dataclass, field
 
 from ..chem.complex import spin_label
@@ -168,7 +169,8 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
     for (arrangement, isomer, spin2s), by_kind in groups.items():
         first = by_kind.get("held") or next(iter(by_kind.values()))
         shaped = by_kind.get(shape_kind, first)
-        row = {"state": f"{arrangement} {isomer}".strip(), "spin": spin_label(spin2s), "s2": first.s2, "tau4": shaped.tau4, "tau4_prime": shaped.tau4_prime,
+        row = {"state": f"{arrangement} {isomer}".strip(), "spin": spin_label(spin2s), "s2": first.s2,
+               "tau4": shaped.tau4, "tau4_prime": shaped.tau4_prime,
                "nearest_shape": shaped.nearest_shape}
         for kind in kinds:
             r = by_kind.get(kind)
@@ -409,8 +411,11 @@ _TEX_UNICODE = {"−": "$-$", "—": "---", "–": "--", "°": r"$^\circ$", "⟨
                 "ⁿ": "$^n$", "Å": r"\AA{}", "ø": r"\o{}", "é": r"\'e", "ü": r'\"u', "ö": r'\"o', "ä": r'\"a'}
 
 
-def tex_escape(text: str) -> str:
-    """Plain text for LaTeX: specials escaped, the few Unicode signs fourfold writes mapped, others dropped."""
+_TEX_SYMBOLS = {"e_σ": r"$e_\sigma$", "e_π": r"$e_\pi$"}  # AOM parameter names in notes, set as symbols
+_TEX_SYMBOL_SPLIT = re.compile("(" + "|".join(map(re.escape, _TEX_SYMBOLS)) + ")")
+
+
+def _tex_characters(text: str) -> str:
     out = []
     for ch in text:
         if ch in _TEX_SPECIAL:
@@ -424,6 +429,11 @@ def tex_escape(text: str) -> str:
     return "".join(out)
 
 
+def tex_escape(text: str) -> str:
+    """Plain text for LaTeX: specials escaped, the few Unicode signs fourfold writes mapped, others dropped."""
+    return "".join(_TEX_SYMBOLS.get(part) or _tex_characters(part) for part in _TEX_SYMBOL_SPLIT.split(text))
+
+
 def to_latex(table: Table) -> str:
     """A booktabs tabular (no siunitx), then the notes; ready for \\input inside a table float."""
     columns = _display_columns(table)
@@ -431,7 +441,10 @@ def to_latex(table: Table) -> str:
     lines = [f"% fourfold: {table.heading('tex')}", rf"\begin{{tabular}}{{{spec}}}", r"\toprule",
              " & ".join(c.tex for c in columns) + r" \\", r"\midrule"]
     for row in table.rows:
-        lines.append(" & ".join(_shown(row.get(c.key), c, "tex") for c in columns) + r" \\")
+        cells = [_shown(row.get(c.key), c, "tex") for c in columns]
+        # a row opening with "[" (a formula) would be read as the optional argument of the \\ or \midrule before it
+        cells[0] = "{}" + cells[0] if cells[0].startswith("[") else cells[0]
+        lines.append(" & ".join(cells) + r" \\")
     lines += [r"\bottomrule", r"\end{tabular}"]
     for note in table.notes:
         lines.append(rf"\par\smallskip{{\footnotesize Note: {tex_escape(note)}\par}}")
