@@ -52,7 +52,8 @@ class Table:
     title: str  # may hold "{formula}", filled in each output's markup
     columns: list[Column]
     rows: list[dict]
-    notes: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)  # caveats
+    findings: list[str] = field(default_factory=list)  # verdict lines printed under the table
     tidy: bool = True  # exported as CSV/JSON (display-only tables are not)
     display: bool = True  # written as Markdown/LaTeX (the long tidy states table is not: per-complex ones are)
     formula: str = ""
@@ -182,8 +183,26 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
                                 for k in kinds if k in by_kind and (n := _note(by_kind[k])))
         rows.append(row)
     title = f"{{formula}} (d{c.d_electrons}), level {c.level}: energies relative to the lowest state"
-    return Table(f"states_{slug(c.formula)}", title, columns, rows, _complex_warnings(c, warnings), tidy=False,
-                 formula=c.formula)
+    return Table(f"states_{slug(c.formula)}", title, columns, rows, _complex_warnings(c, warnings),
+                 _verdicts(c, unit), tidy=False, formula=c.formula)
+
+
+def _verdicts(c, unit: str) -> list[str]:
+    """Computed vs estimated ground state, then ΔE(SP-4 − T-4) per spin with the difference."""
+    u = canonical_unit(unit)
+    digits, label = UNIT_DIGITS[u], UNIT_HEADERS[u]
+    g, e = c.computed_ground, c.estimate.ground
+    computed = "not computed" if g is None else _state_words(g.arrangement, g.isomer, g.spin2s)
+    verdict = "" if c.agrees() is None else (" (agree)" if c.agrees() else " (disagree)")
+    lines = [f"Ground state: computed {computed}; estimated {_state_words(e.arrangement, e.isomer, e.spin2s)}{verdict}."]
+    calc, est = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
+    for spin2s in sorted(set(calc) | set(est)):
+        a, b = _in(calc.get(spin2s), unit), _in(est.get(spin2s), unit)
+        shown = ["—" if v is None else f"{v:+.{digits}f}".replace("-", "−") for v in (a, b)]
+        difference = "" if a is None or b is None else f", difference {a - b:+.{digits}f}".replace("-", "−")
+        lines.append(f"ΔE(SP-4 − T-4), {multiplicity_word(spin2s)}: computed {shown[0]} {label}, "
+                     f"estimated {shown[1]} {label}{difference}.")
+    return lines
 
 
 def _complex_warnings(c, warnings: list[str]) -> list[str]:
@@ -398,6 +417,8 @@ def to_markdown(table: Table, heading_level: int = 3, skip_notes=()) -> str:
     lines.append("|" + "|".join("---:" if c.kind == "number" else ":---" for c in columns) + "|")
     for row in table.rows:
         lines.append("| " + " | ".join(_shown(row.get(c.key), c, "md") for c in columns) + " |")
+    for finding in table.findings:
+        lines += ["", finding]
     for note in (n for n in table.notes if n not in skip_notes):
         lines += ["", f"> **Note.** {note}"]
     return "\n".join(lines) + "\n"
@@ -411,7 +432,7 @@ _TEX_UNICODE = {"−": "$-$", "—": "---", "–": "--", "°": r"$^\circ$", "⟨
                 "ⁿ": "$^n$", "Å": r"\AA{}", "ø": r"\o{}", "é": r"\'e", "ü": r'\"u', "ö": r'\"o', "ä": r'\"a'}
 
 
-_TEX_SYMBOLS = {"e_σ": r"$e_\sigma$", "e_π": r"$e_\pi$"}  # AOM parameter names in notes, set as symbols
+_TEX_SYMBOLS = {"e_σ": r"$e_\sigma$", "e_π": r"$e_\pi$", "⁻¹": "$^{-1}$"}  # symbols in notes, set as such
 _TEX_SYMBOL_SPLIT = re.compile("(" + "|".join(map(re.escape, _TEX_SYMBOLS)) + ")")
 
 
@@ -446,6 +467,8 @@ def to_latex(table: Table) -> str:
         cells[0] = "{}" + cells[0] if cells[0].startswith("[") else cells[0]
         lines.append(" & ".join(cells) + r" \\")
     lines += [r"\bottomrule", r"\end{tabular}"]
+    for finding in table.findings:
+        lines.append(rf"\par\smallskip{{\footnotesize {tex_escape(finding)}\par}}")
     for note in table.notes:
         lines.append(rf"\par\smallskip{{\footnotesize Note: {tex_escape(note)}\par}}")
     return "\n".join(lines) + "\n"
