@@ -23,7 +23,8 @@ def write_extxyz(atoms, path: Path) -> Path:
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     clean = atoms.copy()
-    clean.info = {k: v for k, v in atoms.info.items() if isinstance(v, (str, int, float, bool))}
+    # ASE writes an empty string as a bare `key=` and misreads the line after it: leave empty values out
+    clean.info = {k: v for k, v in atoms.info.items() if isinstance(v, (str, int, float, bool)) and v != ""}
     write(path, clean, format="extxyz")
     return path
 
