@@ -50,9 +50,11 @@ def start_structure(spec: dict, parent: dict | None):
 
 def _held_arrangement(spec: dict, atoms) -> str:
     """Which ideal arrangement's constraint rules apply; path points near the square count as SP-4."""
+    from .relax import LINEAR_ANGLE_DEG
+
     if spec["arrangement"] != "path":
         return spec["arrangement"]
-    return "SP-4" if spec["trans_angle_deg"] > 150.0 else "T-4"
+    return "SP-4" if spec["trans_angle_deg"] > LINEAR_ANGLE_DEG else "T-4"
 
 
 def _level(engine: dict):
