@@ -163,3 +163,27 @@ def test_malformed_recipes_one_line_exit_2(tmp_path, text, fragment):
     lines = result.stderr.strip().splitlines()
     assert len(lines) == 1 and fragment in lines[0] and str(path) in lines[0], lines
     assert not (tmp_path / "out").exists()  # validated before anything ran or was written
+
+
+SHIPPED_RECIPES = sorted((Path(__file__).resolve().parents[1] / "recipes").glob("*.toml"))
+
+
+@pytest.mark.parametrize("path", SHIPPED_RECIPES, ids=[p.stem for p in SHIPPED_RECIPES])
+def test_shipped_recipes_load_and_expand(path):
+    # The README's commands point at these files: each must validate and expand into jobs whose final
+    # energies cover every allowed spin of every complex, parents listed before their children.
+    from fourfold.study.recipe import load_recipe
+
+    study = load_recipe(path)
+    jobs = expand(study)
+    assert jobs and len({job.key for job in jobs}) == len(jobs)
+    seen = set()
+    for job in jobs:
+        assert job.parent is None or job.parent in seen
+        seen.add(job.key)
+    assert {"T-4", "SP-4"} <= {job.spec["arrangement"] for job in jobs}
+    for entry in study.complexes:
+        final_spins = {job.spec["spin2s"] for job in jobs if job.final and job.spec["formula"] == entry.complex.formula}
+        assert final_spins == set(entry.complex.allowed_spin2s)
+    if path.stem == "demo":
+        assert study.complexes[0].complex.allowed_spin2s == (0, 2)  # d8: 2S = 0, 2 (common practice, no source)

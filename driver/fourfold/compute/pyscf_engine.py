@@ -388,10 +388,11 @@ def _finish_on_grid(run: _Run, grid_level: int) -> _Run:
 
 STABILITY_TOLERANCE = 1e-4       # Davidson convergence, as PySCF's stability default
 UNSTABLE_EIGENVALUE = -1e-5      # a lower orbital-Hessian eigenvalue means an instability (PySCF's test)
+STABILITY_START_VECTORS = 4      # Davidson start vectors: unit rotations at the smallest diagonal elements
 
 
 def _unstable_uks_guess(rks_mf):
-    """UKS density along the lowest RKS → UKS (triplet) instability, or None when the RKS solution is stable.
+    """UKS density along the lowest RKS → UKS (triplet) instability found, or None when none is found.
 
     The RHF → UHF part of PySCF's external stability analysis, one root: ``mf.stability(external=True)``
     also runs a real → complex analysis and three roots, which measured 42 s CPU against 11 s for the
@@ -407,9 +408,17 @@ def _unstable_uks_guess(rks_mf):
         shifted[abs(shifted) < 1e-8] = 1e-8
         return dx / shifted
 
-    start = np.zeros_like(diagonal)
-    start[diagonal > 1e-5] = 1.0 / diagonal[diagonal > 1e-5]
-    eigenvalue, vector = lib.davidson(hessian_times, start, precondition, tol=STABILITY_TOLERANCE, nroots=1,
+    # Start from the rotations with the smallest diagonal (the orbital pairs across the smallest gaps),
+    # not PySCF's single vector 1/diagonal: measured with B3LYP/def2-SVP on xTB-held SP-4 structures,
+    # NiCl2(PMe3)2 trans 6 Hessian products instead of 28 (15 s against 68 s on one core), [Ni(CN)4]2-
+    # 7 instead of 17, and the instabilities of [NiCl4]2- and [NiBr4]2- found in 4–6; the verdict
+    # (stable or not) was the same in every case.
+    starts = []
+    for index in np.argsort(diagonal)[:STABILITY_START_VECTORS]:
+        unit = np.zeros_like(diagonal)
+        unit[index] = 1.0
+        starts.append(unit)
+    eigenvalue, vector = lib.davidson(hessian_times, starts, precondition, tol=STABILITY_TOLERANCE, nroots=1,
                                       verbose=rks_mf.verbose)
     lib.logger.info(rks_mf, "RKS -> UKS stability: lowest orbital-Hessian eigenvalue %.6g", eigenvalue)
     if eigenvalue >= UNSTABLE_EIGENVALUE:

@@ -167,6 +167,18 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
     return summary
 
 
+# Imported once in the fork server so each job process starts with them loaded: about 1.5 CPU-s per job
+# otherwise (measured: pyscf.dft 0.6 s, dftd3 0.6 s, geomeTRIC 0.6 s, overlapping). Only imports, no
+# OpenMP region runs in the server, so the forked jobs still start their own thread pools. A module that
+# is missing (an optional extra) is skipped by the fork server and imported, or not, by the job itself.
+JOB_MODULES = (
+    "numpy", "fourfold.compute.tasks", "fourfold.compute.pyscf_engine", "fourfold.compute.relax",
+    "fourfold.compute.xtb_engine", "fourfold.compute.dblock", "fourfold.field.fit", "fourfold.geometry.builder",
+    "fourfold.geometry.shape", "pyscf.dft", "pyscf.df", "pyscf.scf.stability", "pyscf.grad", "dftd3.pyscf",
+    "geometric.optimize", "tblite.interface",
+)
+
+
 class LocalPool:
     """Up to ``workers`` jobs side by side, each in a process forked from a clean fork server.
 
@@ -180,7 +192,7 @@ class LocalPool:
         for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
             os.environ[name] = str(threads)
         self._context = get_context("forkserver")
-        self._context.set_forkserver_preload(["fourfold.compute.tasks", "numpy"])
+        self._context.set_forkserver_preload(list(JOB_MODULES))
         self.workers, self.threads, self.out_dir, self.timeout_s = workers, threads, out_dir, timeout_s
         self._running: list[_Running] = []
 
