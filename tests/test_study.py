@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 
 from fourfold.study.jobs import expand
-from fourfold.study.recipe import parse_recipe
+from fourfold.study.recipe import load_recipe, parse_recipe
 from fourfold.study.store import ResultStore
 
 RECIPE = """
@@ -172,8 +172,6 @@ SHIPPED_RECIPES = sorted((Path(__file__).resolve().parents[1] / "recipes").glob(
 def test_shipped_recipes_load_and_expand(path):
     # The README's commands point at these files: each must validate and expand into jobs whose final
     # energies cover every allowed spin of every complex, parents listed before their children.
-    from fourfold.study.recipe import load_recipe
-
     study = load_recipe(path)
     jobs = expand(study)
     assert jobs and len({job.key for job in jobs}) == len(jobs)
