@@ -62,13 +62,14 @@ def fourfold(*args):
 
 @pytest.fixture(scope="module")
 def studies(tmp_path_factory):
+    from fourfold.pipeline import open_store
     from fourfold.report.render import write_report
 
     root = tmp_path_factory.mktemp("report")
     pair = root / "pair"
     study = parse_recipe(TWO_COMPLEXES, "pair.toml")
     run_study(study, pair, workers=2)
-    report = write_report(pair, study)
+    report = write_report(pair, study, open_store(pair))
     recipe = root / "path.toml"
     recipe.write_text(PATH)
     path = root / "path"
@@ -88,13 +89,19 @@ def _stored_finals(folder):
     return found
 
 
+def comparison_for_folder(folder, study):
+    from fourfold.pipeline import open_store
+    from fourfold.verdict.comparison import comparison_from_store
+
+    return comparison_from_store(study, open_store(folder))
+
+
 def _read_csv(path):
     with open(path, newline="", encoding="utf-8") as handle:
         return list(csv.DictReader(handle))
 
 
 def test_relative_energies_are_the_stored_hartree_differences_in_every_unit(studies):
-    from fourfold.report.comparison import comparison_for_folder
     from fourfold.report.tables import states_table
 
     finals = {k: r for k, r in _stored_finals(studies["pair"]).items() if k[1] != "path"}
@@ -279,7 +286,6 @@ def test_figures_have_units_on_their_axes_and_the_stored_numbers(studies):
 
 def test_run_writes_the_report_and_the_path_figure_marks_the_spin_crossing(studies):
     from fourfold.report import figures
-    from fourfold.report.comparison import comparison_for_folder
     from fourfold.study.recipe import load_recipe
 
     folder = studies["path"]

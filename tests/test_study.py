@@ -179,9 +179,9 @@ def test_shipped_recipes_load_and_expand(path):
     for job in jobs:
         assert job.parent is None or job.parent in seen
         seen.add(job.key)
-    assert {"T-4", "SP-4"} <= {job.spec["arrangement"] for job in jobs}
+    assert {"T-4", "SP-4"} <= {job.spec.arrangement for job in jobs}
     for entry in study.complexes:
-        final_spins = {job.spec["spin2s"] for job in jobs if job.final and job.spec["formula"] == entry.complex.formula}
+        final_spins = {job.spec.spin2s for job in jobs if job.final and job.spec.formula == entry.complex.formula}
         assert final_spins == set(entry.complex.allowed_spin2s)
     if path.stem == "demo":
         assert study.complexes[0].complex.allowed_spin2s == (0, 2)  # d8: 2S = 0, 2 (common practice, no source)

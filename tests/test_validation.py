@@ -6,7 +6,7 @@ single points). Takes tens of minutes on 2 cores.
 
 import pytest
 
-from fourfold.study.scan import scan
+from fourfold.pipeline import scan
 
 pytestmark = pytest.mark.slow
 

@@ -106,37 +106,25 @@ def _progress_printer(quiet: bool):
     return progress, update
 
 
-def _run_and_report(study, out_dir, workers, threads, retry_failed, quiet, as_json, timeout_s=None, single=False,
-                    store_url=None, pool_factory=None):
-    from .report.text import run_summary_text
-    from .study.runner import run_study
+def _run_and_print(study, out_dir, options: dict, as_json: bool, single: bool = False):
+    """Run the pipeline with a progress bar, then print the comparison (or its JSON) and where the files went."""
+    from .pipeline import RunOptions, run_pipeline
+    from .report.text import comparison_text, run_summary_text
 
-    progress, update = _progress_printer(quiet or as_json)
+    progress, update = _progress_printer(options.pop("quiet") or as_json)
+    run_options = RunOptions(out_dir=out_dir, progress=update, **options)
     if progress:
         with progress:
-            summary = run_study(study, out_dir, workers=workers, threads=threads, retry_failed=retry_failed,
-                                timeout_s=timeout_s, progress=update, store_url=store_url, pool_factory=pool_factory)
+            outcome = run_pipeline(study, run_options)
     else:
-        summary = run_study(study, out_dir, workers=workers, threads=threads, retry_failed=retry_failed,
-                            timeout_s=timeout_s, store_url=store_url, pool_factory=pool_factory)
-    from .report.comparison import build_comparison, comparison_for_folder
-
-    if store_url:
-        from .study.store import ResultStore
-
-        comparison = build_comparison(study, {r["job_key"]: r for r in ResultStore(store_url).results()})
-    else:
-        comparison = comparison_for_folder(out_dir, study)
+        outcome = run_pipeline(study, run_options)
     if as_json:
-        data = comparison.as_dict()
+        data = outcome.comparison.as_dict()
         click.echo(json.dumps(data["complexes"][0] if single else data, indent=2, ensure_ascii=False))
     else:
-        click.echo(comparison.text())
-        click.echo(run_summary_text(summary, out_dir))
-    from .report.render import write_report
-
-    click.echo(write_report(out_dir, study, store_url=store_url).summary_line(), err=as_json)
-    return summary
+        click.echo(comparison_text(outcome.comparison))
+        click.echo(run_summary_text(outcome.summary, out_dir))
+    click.echo(outcome.report.summary_line(), err=as_json)
 
 
 _RUN_OPTIONS = [
@@ -180,18 +168,19 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
     Rerunning the same command resumes: finished jobs are never recomputed."""
     from pathlib import Path
 
+    from .chem.notation import formula_slug
+    from .pipeline import check_store_url
     from .study.recipe import load_recipe, recipe_for_formula
 
     if bool(recipe) == bool(formula):
         raise InputError("give either a RECIPE file or --formula FORMULA (with --level), not both or neither")
-    if store_url and not store_url.startswith(("postgresql://", "postgres://")):
-        raise InputError("--store takes a postgresql://USER@HOST:PORT/DB address; leave it out to keep results.db "
-                         "in the study folder")
+    check_store_url(store_url)
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
-    default_name = Path(recipe).stem if recipe else _folder_name(study.complexes[0].complex.formula, level)
-    _run_and_report(study, out_dir or Path("outputs") / default_name, workers, threads, retry_failed, quiet,
-                    as_json, timeout_s, single=bool(formula), store_url=store_url,
-                    pool_factory=_cluster_pool(study, threads, scheduler, cluster_kind, cluster_config))
+    default_name = Path(recipe).stem if recipe else f"{formula_slug(study.complexes[0].complex.formula)}_{level}"
+    pool = _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config)
+    _run_and_print(study, out_dir or Path("outputs") / default_name,
+                   dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s,
+                        quiet=quiet, store_url=store_url, pool_factory=pool), as_json, single=bool(formula))
 
 
 def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
@@ -213,36 +202,32 @@ def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
     return pool_factory(threads, scheduler=scheduler, cluster_kind=cluster_kind, cluster_settings=settings)
 
 
-def _folder_name(formula: str, level: str) -> str:
-    import re
-
-    return re.sub(r"[^A-Za-z0-9+\-]", "", formula) + f"_{level}"
-
-
 @main.command()
 @click.option("--level", default=None, help="Run the demo at another level (e.g. screen: the whole pipeline in "
                                            "minutes, xTB energies only). Default: the recipe's quick.")
 @_with_run_options
 def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json):
     """Run the bundled demo study (four nickel(II) complexes at the quick level) into outputs/demo."""
-    import json as _json
-    import re
     from importlib import resources
     from pathlib import Path
 
     from .study.recipe import parse_recipe
 
     text = resources.files("fourfold").joinpath("recipes/demo.toml").read_text(encoding="utf-8")
-    if level:
-        # the folder's copy of the recipe must say what ran, so the level is changed in the text itself
-        text = re.sub(r"^level = .*$", f"level = {_json.dumps(level)}", text, count=1, flags=re.M)
     study = parse_recipe(text, "demo.toml")
-    if out_dir is None and level:
-        out_dir = Path("outputs") / f"demo-{study.level.name}"
+    if level:
+        study = study.with_level(level)  # the folder's recipe.toml is written from the study: it says what ran
+        out_dir = out_dir or Path("outputs") / f"demo-{study.level.name}"
     click.echo("Demo: choosing a nickel(II) precursor. Nickel salts, cyanides and phosphines are hazardous; follow "
                "local rules and the safety data sheets. A computed preference does not replace experiment.", err=True)
-    _run_and_report(study, out_dir or Path("outputs") / "demo", workers, threads, retry_failed, quiet, as_json,
-                    timeout_s)
+    _run_and_print(study, out_dir or Path("outputs") / "demo",
+                   dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s, quiet=quiet),
+                   as_json)
+
+
+_STORE_OPTION = click.option("--store", "store_url", metavar="postgresql://USER@HOST:PORT/DB",
+                             help="Read the results from this PostgreSQL store (the one the run used) instead of "
+                                  "FOLDER/results.db.")
 
 
 @main.command()
@@ -251,26 +236,28 @@ def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_js
               show_default=True, help="Energy unit of the tables and figures (kJ/mol, kcal/mol, eV, cm-1).")
 @click.option("--format", "formats", multiple=True, type=click.Choice(("csv", "md", "tex", "json")),
               help="Table format to write (repeatable; default all). Figures and structures are always written.")
-def report(folder, unit, formats):
-    """Tables, figures and extended XYZ structures of a study FOLDER, from its results.db; prints the summary.
+@_STORE_OPTION
+def report(folder, unit, formats, store_url):
+    """Tables, figures and extended XYZ structures of a study FOLDER, from its store; prints the summary.
 
     Writes FOLDER/tables, FOLDER/figures (PDF, SVG, 300 dpi PNG) and FOLDER/structures."""
-    from .report.render import write_report
+    from .pipeline import report_folder
     from .report.text import report_text
 
-    click.echo(report_text(write_report(folder, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"))),
-               nl=False)
+    written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"))
+    click.echo(report_text(written), nl=False)
 
 
 @main.command()
 @click.argument("folder", type=click.Path(file_okay=False, exists=True))
 @click.option("--json", "as_json", is_flag=True, help="Print the counts as JSON.")
-def status(folder, as_json):
+@_STORE_OPTION
+def status(folder, as_json, store_url):
     """Done / failed / pending jobs of a study FOLDER, with the failures' one-line reasons."""
+    from .pipeline import folder_status
     from .report.text import status_text
-    from .study.status import folder_status
 
-    found = folder_status(folder)
+    found = folder_status(folder, store_url)
     if as_json:
         click.echo(json.dumps(found, indent=2, ensure_ascii=False))
     else:

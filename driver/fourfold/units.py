@@ -5,6 +5,10 @@ as bundled in SciPy's ``_codata.txt2018``. PySCF's ``pyscf.data.nist`` uses olde
 so conversions are never taken from there.
 """
 
+from __future__ import annotations
+
+from dataclasses import dataclass
+
 HARTREE_EV = 27.211386245988
 HARTREE_CM = 219474.63136320
 HARTREE_JOULE = 4.3597447222071e-18
@@ -36,6 +40,39 @@ UNIT_ALIASES = {
 UNIT_LABELS = {
     "hartree": "Eh", "kj_mol": "kJ/mol", "kcal_mol": "kcal/mol", "ev": "eV", "cm": "cm⁻¹",
 }
+
+
+@dataclass(frozen=True)
+class EnergyUnit:
+    """How one energy unit is written everywhere: in prose (``label``), in a table header (``header``), in
+    LaTeX (``tex``), as a machine column suffix (``suffix``), with
+    ``digits`` decimals (about 0.1 kJ/mol in every unit)."""
+
+    name: str  # canonical name, a key of _PER_HARTREE
+    label: str
+    header: str
+    tex: str
+    suffix: str
+    digits: int
+
+    def from_kj_mol(self, value_kj_mol):
+        """A kJ/mol value (or None) in this unit."""
+        return None if value_kj_mol is None else convert_energy(value_kj_mol, "kj_mol", self.name)
+
+
+_ENERGY_UNITS = {
+    "kj_mol": EnergyUnit("kj_mol", "kJ/mol", "kJ mol⁻¹", r"kJ\,mol$^{-1}$", "kj_mol", 1),
+    "kcal_mol": EnergyUnit("kcal_mol", "kcal/mol", "kcal mol⁻¹", r"kcal\,mol$^{-1}$", "kcal_mol", 1),
+    "ev": EnergyUnit("ev", "eV", "eV", "eV", "ev", 3),
+    "cm": EnergyUnit("cm", "cm⁻¹", "cm⁻¹", r"cm$^{-1}$", "cm-1", 0),
+    "hartree": EnergyUnit("hartree", "Eh", "Eh", r"$E_\mathrm{h}$", "hartree", 5),
+}
+REPORT_UNITS = ("kj", "kcal", "ev", "cm")  # the units reports are written in (hartree stays in the raw columns)
+
+
+def energy_unit(name: str) -> EnergyUnit:
+    """The EnergyUnit record of a user-typed unit name ('kj', 'kcal/mol', 'cm-1', …)."""
+    return _ENERGY_UNITS[canonical_unit(name)]
 
 
 def canonical_unit(name: str) -> str:

@@ -1,46 +1,59 @@
 """One job, executed: the worker side of a study. Plain data in, plain data out.
 
-``run_task(task, spec, parent, log_path)`` rebuilds the complex from the job's spec, takes its start
-structure (the ideal or path-point structure, or the parent job's result), runs the engine the spec names
-and returns a dict a driver can store (no objects, no open files). It never touches the store.
+``run_task(task, spec, parent, context)`` rebuilds the complex from the job's spec (a
+``fourfold.study.jobs.JobSpec``, read only through its attributes), takes its start structure (the ideal or
+path-point structure, or the parent job's result), runs the engine the spec names and returns a dict a
+driver can store (no objects, no open files). It never touches the store.
 """
 
 from __future__ import annotations
 
 import time
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..errors import ComputeError, NotConverged
 
 
-def complex_from_spec(spec: dict):
+@dataclass(frozen=True)
+class JobContext:
+    """Where one job writes and how it runs: its log, its orbital file (DFT jobs), its thread count, and the
+    orbital file of the parent job to start the SCF from."""
+
+    log_path: str | None = None
+    chk_path: str | None = None
+    threads: int = 1
+    guess: str | None = None
+
+
+def complex_from_spec(spec):
     from ..chem.complex import complex_explicit
     from ..chem.ligands import Ligand
     from ..chem.metals import Sourced
 
     custom = {}
-    for name, c in spec["complex"]["custom_ligands"].items():
+    for name, c in spec.complex["custom_ligands"].items():
         custom[name] = Ligand(
             name=name, label=c["label"], charge=c["charge"], symbols=tuple(c["symbols"]),
             positions_angstrom=np.array(c["positions_angstrom"], dtype=float),
             f=Sourced(c["f"], "recipe"), pi_ratio=Sourced(c["pi_ratio"], "recipe"), h=Sourced(c["h"], "recipe"),
             repulsion_cm=Sourced(c["repulsion_cm"], "recipe"), distance_angstrom=c["distance_angstrom"],
         )
-    cspec = spec["complex"]
+    cspec = spec.complex
     ligands = [custom.get(name, name) for name in cspec["ligands"]]
     return complex_explicit(cspec["metal"], cspec["oxidation_state"], ligands, custom_ligands=custom)
 
 
-def start_structure(spec: dict, parent: dict | None):
+def start_structure(spec, parent: dict | None):
     """The start geometry: the parent's result, else the ideal (or path-point) structure."""
     from ..geometry.builder import build, build_path_point
 
     cx = complex_from_spec(spec)
-    if spec["arrangement"] == "path":
-        atoms = build_path_point(cx, spec["trans_angle_deg"], spec["isomer"] or None)
+    if spec.is_path_point:
+        atoms = build_path_point(cx, spec.trans_angle_deg, spec.isomer or None)
     else:
-        atoms = build(cx, spec["arrangement"], spec["isomer"] or None)
+        atoms = build(cx, spec.arrangement, spec.isomer or None)
     if parent is not None:
         if parent.get("status") != "done":
             raise ComputeError("the parent job did not finish")
@@ -48,13 +61,13 @@ def start_structure(spec: dict, parent: dict | None):
     return cx, atoms
 
 
-def _held_arrangement(spec: dict, atoms) -> str:
+def _held_arrangement(spec) -> str:
     """Which ideal arrangement's constraint rules apply; path points near the square count as SP-4."""
     from .relax import LINEAR_ANGLE_DEG
 
-    if spec["arrangement"] != "path":
-        return spec["arrangement"]
-    return "SP-4" if spec["trans_angle_deg"] > LINEAR_ANGLE_DEG else "T-4"
+    if not spec.is_path_point:
+        return spec.arrangement
+    return "SP-4" if spec.trans_angle_deg > LINEAR_ANGLE_DEG else "T-4"
 
 
 def _level(engine: dict):
@@ -63,15 +76,17 @@ def _level(engine: dict):
     return custom_level(engine)
 
 
-def _potential(engine: dict, atoms, charge: int, spin2s: int, log_path, threads: int, guess):
-    if engine["method"] == "xtb":
+def _potential(spec, atoms, context: JobContext):
+    engine = spec.engine
+    if spec.method == "xtb":
         from .xtb_engine import XtbPotential
 
-        return XtbPotential(atoms.get_chemical_symbols(), charge, spin2s, solvent=engine.get("solvent"),
-                            spin_polarization=engine.get("spin_polarization", True), threads=threads)
+        return XtbPotential(atoms.get_chemical_symbols(), spec.charge, spec.spin2s, solvent=engine.get("solvent"),
+                            spin_polarization=engine.get("spin_polarization", True), threads=context.threads)
     from .pyscf_engine import PyscfPotential
 
-    return PyscfPotential(atoms, charge, spin2s, _level(engine), guess=guess, log_path=log_path, threads=threads)
+    return PyscfPotential(atoms, spec.charge, spec.spin2s, _level(engine), guess=context.guess,
+                          log_path=context.log_path, threads=context.threads)
 
 
 def _indices(atoms) -> dict:
@@ -82,21 +97,19 @@ def _indices(atoms) -> dict:
             "nearest_shape_measure": found["nearest_shape_measure"], "shape_measures": found["shape_measures"]}
 
 
-def run_task(task: str, spec: dict, parent: dict | None, log_path=None, threads: int = 1, chk_path=None) -> dict:
+def run_task(task: str, spec, parent: dict | None, context: JobContext = JobContext()) -> dict:
     """Run one job and return its result as plain data (status 'done' or 'failed' with a reason).
 
-    ``chk_path``: where a DFT job saves its converged orbitals; a child job starts its SCF from its
-    parent's (the single point after a DFT relaxation)."""
+    ``context.chk_path``: where a DFT job saves its converged orbitals; a child job starts its SCF from its
+    parent's (``context.guess``, the single point after a DFT relaxation)."""
     started = time.perf_counter()
     cx, atoms = start_structure(spec, parent)
-    engine = spec["engine"]
-    guess = parent.get("chkfile") if parent else None
-    result = {"engine": engine["method"], "warnings": []}
+    result = {"engine": spec.method, "warnings": []}
     try:
         if task == "single-point":
-            result.update(_single_point(engine, atoms, cx, spec, log_path, threads, guess, chk_path))
+            result.update(_single_point(spec, atoms, cx, context))
         else:
-            result.update(_relaxation(task, engine, atoms, cx, spec, log_path, threads, guess, chk_path))
+            result.update(_relaxation(task, spec, atoms, cx, context))
             atoms = result.pop("atoms")
     except NotConverged as error:
         last = getattr(error, "last_atoms", None)
@@ -107,20 +120,20 @@ def run_task(task: str, spec: dict, parent: dict | None, log_path=None, threads:
     result["symbols"] = atoms.get_chemical_symbols()
     result["positions_angstrom"] = atoms.get_positions().tolist()
     result["wall_seconds"] = time.perf_counter() - started
-    if engine["method"] == "xtb":
+    if spec.method == "xtb":
         from .xtb_engine import XTB_SPIN_WARNING
 
         result["warnings"].append(XTB_SPIN_WARNING)
     return result
 
 
-def _relaxation(task, engine, atoms, cx, spec, log_path, threads, guess, chk_path) -> dict:
+def _relaxation(task: str, spec, atoms, cx, context: JobContext) -> dict:
     from .relax import relax
 
-    kind = "held" if task == "path-point" else spec["kind"]
-    potential = _potential(engine, atoms, cx.charge, spec["spin2s"], log_path, threads, guess)
-    outcome = relax(atoms, potential, kind, _held_arrangement(spec, atoms), max_steps=spec.get("max_steps", 100),
-                    log_path=log_path)
+    kind = "held" if task == "path-point" else spec.kind
+    potential = _potential(spec, atoms, context)
+    outcome = relax(atoms, potential, kind, _held_arrangement(spec), max_steps=spec.max_steps,
+                    log_path=context.log_path)
     found = {"atoms": outcome.atoms, "energy_hartree": outcome.energy_hartree, "converged": outcome.converged,
              "steps": outcome.steps, "gradient_calls": outcome.gradient_calls, "message": outcome.message}
     if not outcome.converged:
@@ -129,22 +142,22 @@ def _relaxation(task, engine, atoms, cx, spec, log_path, threads, guess, chk_pat
     if scf is not None:
         found.update(scf_summary(scf))
         found.update(_d_block(scf, outcome.atoms, cx))
-        if chk_path:
-            found["chkfile"] = _save_orbitals(scf, chk_path)
+        if context.chk_path:
+            found["chkfile"] = _save_orbitals(scf, context.chk_path)
     return found
 
 
-def _single_point(engine, atoms, cx, spec, log_path, threads, guess, chk_path) -> dict:
+def _single_point(spec, atoms, cx, context: JobContext) -> dict:
     from .pyscf_engine import run_scf
 
-    scf = run_scf(atoms, cx.charge, spec["spin2s"], _level(engine), guess=guess, log_path=log_path, threads=threads,
-                  chkfile=chk_path)
+    scf = run_scf(atoms, spec.charge, spec.spin2s, _level(spec.engine), guess=context.guess,
+                  log_path=context.log_path, threads=context.threads, chkfile=context.chk_path)
     found = {"energy_hartree": scf.energy_hartree, "converged": scf.converged, **scf_summary(scf)}
     if not scf.converged:
         found.update(status="failed", reason=f"SCF not converged: {scf.reason}")
         return found
-    if chk_path:
-        found["chkfile"] = str(chk_path)
+    if context.chk_path:
+        found["chkfile"] = str(context.chk_path)
     found.update(_d_block(scf, atoms, cx))
     return found
 

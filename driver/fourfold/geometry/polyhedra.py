@@ -83,3 +83,8 @@ def unit_vectors(arrangement: str) -> np.ndarray:
             f"unknown arrangement {arrangement!r}: use one of {', '.join(ARRANGEMENTS)}"
         ) from None
     return vectors.copy()
+
+
+def arrangement_rank(arrangement: str) -> int:
+    """Position of an arrangement in ARRANGEMENTS (the order every table and figure lists them in); others last."""
+    return ARRANGEMENTS.index(arrangement) if arrangement in ARRANGEMENTS else len(ARRANGEMENTS)

@@ -5,15 +5,15 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+from ..chem.notation import formula_slug
 from ..geometry.shape import geometry_indices
 
 
 def structure_filename(atoms, suffix: str = "") -> str:
     """'NiCl4_2-_SP-4_trans.xyz' style names: formula, arrangement, isomer, then an optional suffix."""
     info = atoms.info
-    parts = [info["formula"].strip("[]").replace("]", "_"), info["arrangement"], info.get("isomer", ""), suffix]
-    stem = "_".join(p for p in parts if p)
-    return re.sub(r"[^A-Za-z0-9+\-_.,]", "", stem.replace("(", "").replace(")", "")) + ".xyz"
+    parts = [formula_slug(info["formula"]), info["arrangement"], info.get("isomer", ""), suffix]
+    return re.sub(r"[^A-Za-z0-9+\-_.,]", "", "_".join(p for p in parts if p)) + ".xyz"
 
 
 def write_extxyz(atoms, path: Path) -> Path:

@@ -24,7 +24,9 @@ from pathlib import Path
 import numpy as np
 
 from ..compute.xtb_engine import XTB_SPIN_WARNING
-from ..units import canonical_unit, convert_energy
+from ..chem.notation import formula_slug
+from ..geometry.polyhedra import arrangement_rank
+from ..units import energy_unit
 from .markup import formula_unicode, multiplicity_word, orbital_mathtext
 
 SINGLE_COLUMN_IN = 85 / 25.4
@@ -40,10 +42,8 @@ _SPIN_COLOURS = {0: "blue", 1: "bluish green", 2: "vermillion", 3: "orange", 4: 
 _SPIN_MARKERS = {0: "o", 1: "v", 2: "s", 3: "^", 4: "D", 5: "P"}
 _ISOMER_LINES = {"": "-", "trans": "-", "cis": "--"}
 _GREY = "#6b6b6b"
-_ARRANGEMENT_ORDER = {"T-4": 0, "SP-4": 1, "SS-4": 2, "vTBPY-4": 3}
 # Units and formulas in Unicode (DejaVu Sans has the sub- and superscript digits): mathtext parsing was the
 # largest cost of writing a report (measured with cProfile), so it is kept for the orbital labels only.
-_UNIT_MATH = {"kj_mol": "kJ mol⁻¹", "kcal_mol": "kcal mol⁻¹", "ev": "eV", "cm": "cm⁻¹", "hartree": "Eh"}
 XTB_NOTE = "GFN2-xTB energies: spin-state gaps are a screen only, not a verdict"
 
 _STYLE = {
@@ -67,7 +67,7 @@ def spin_marker(spin2s: int) -> str:
 
 
 def unit_math(unit: str) -> str:
-    return _UNIT_MATH[canonical_unit(unit)]
+    return energy_unit(unit).header
 
 
 @contextmanager
@@ -92,7 +92,7 @@ def _width(columns: int) -> float:
 
 
 def _in_unit(value_kj_mol, unit):
-    return None if value_kj_mol is None else convert_energy(value_kj_mol, "kj", unit)
+    return energy_unit(unit).from_kj_mol(value_kj_mol)
 
 
 def _spread(targets, gap: float) -> np.ndarray:
@@ -142,7 +142,7 @@ def _is_xtb(records) -> bool:
 
 def _groups(c) -> list[tuple[str, str]]:
     found = {(s.arrangement, s.isomer) for s in c.estimate.states} | {(r.arrangement, r.isomer) for r in c.records}
-    return sorted(found, key=lambda g: (_ARRANGEMENT_ORDER.get(g[0], 9), g[1]))
+    return sorted(found, key=lambda g: (arrangement_rank(g[0]), g[1]))
 
 
 def _group_label(group) -> str:
@@ -155,7 +155,7 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
     """Levels of every arrangement × isomer × 2S of one complex: computed (left) beside estimated (right)."""
     from matplotlib.lines import Line2D
 
-    unit = canonical_unit(unit)
+    unit = energy_unit(unit).name
     groups = _groups(c)
     computed = {(r.arrangement, r.isomer, r.spin2s): _in_unit(r.relative_kj_mol, unit) for r in c.held_or_free()}
     marks = {(r.arrangement, r.isomer, r.spin2s): " BS" if r.broken_symmetry else ("*" if r.spin_contaminated else "")
@@ -443,7 +443,7 @@ def parity_points(comparison) -> list[tuple[str, float, float, bool | None]]:
 
 def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: float = AGREEMENT_BAND_KJ_MOL):
     """Estimated against computed ΔE(SP-4 − T-4) per complex; None when no complex has both numbers."""
-    unit = canonical_unit(unit)
+    unit = energy_unit(unit).name
     points = parity_points(comparison)
     if not points:
         return None
@@ -536,7 +536,7 @@ def spin_crossings(path_records) -> list[Crossing]:
 
 def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
     """Energy against the trans L–M–L angle for each spin (and SP-4 isomer); None without path points."""
-    unit = canonical_unit(unit)
+    unit = energy_unit(unit).name
     done = [r for r in c.path_records if r.status == "done" and r.relative_kj_mol is not None]
     if not done:
         return None
@@ -591,15 +591,13 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
 
 def study_figures(comparison, unit: str = "kj") -> dict:
     """name -> Figure for every figure the comparison supports."""
-    from .markup import slug
-
     figures = {}
     for c in comparison.complexes:
-        figures[f"ladder_{slug(c.formula)}"] = ladder_figure(c, unit, warnings=comparison.warnings)
-        figures[f"d_levels_{slug(c.formula)}"] = d_levels_figure(c)
+        figures[f"ladder_{formula_slug(c.formula)}"] = ladder_figure(c, unit, warnings=comparison.warnings)
+        figures[f"d_levels_{formula_slug(c.formula)}"] = d_levels_figure(c)
         path = path_figure(c, unit, warnings=comparison.warnings)
         if path is not None:
-            figures[f"path_{slug(c.formula)}"] = path
+            figures[f"path_{formula_slug(c.formula)}"] = path
     parity = parity_figure(comparison, unit)
     if parity is not None:
         figures["parity"] = parity
@@ -618,7 +616,7 @@ def save_figure(fig, stem, formats=FIGURE_FORMATS) -> list[Path]:
     with _style():
         for extension in formats:
             target = stem.with_suffix(f".{extension}")
-            partial = target.with_name(f".{target.name}.partial")
+            partial = target.with_name(f".{target.name}.{os.getpid()}.partial")
             fig.savefig(partial, format=extension, dpi=PNG_DPI, metadata=_METADATA[extension])
             os.replace(partial, target)
             written.append(target)

@@ -33,13 +33,6 @@ def formula_latex(formula: str) -> str:
     return text + (f"$^{{{charge}}}$" if charge else "")
 
 
-def slug(formula: str) -> str:
-    """A file-name stem: '[NiCl2(PMe3)2]' -> 'NiCl2PMe32', '[NiCl4]2-' -> 'NiCl4_2-'."""
-    body, charge = _split_charge(formula)
-    stem = re.sub(r"[^A-Za-z0-9]", "", body)
-    return stem + (f"_{charge}" if charge else "")
-
-
 _ORBITAL_MATH = {"xy": r"\mathit{xy}", "yz": r"\mathit{yz}", "xz": r"\mathit{xz}", "z2": r"\mathit{z}^2",
                  "x2-y2": r"\mathit{x}^2\!-\!\mathit{y}^2"}  # coordinates in italics
 

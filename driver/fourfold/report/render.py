@@ -17,8 +17,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import InputError
-from ..units import UNIT_LABELS, canonical_unit, convert_energy
+from ..units import REPORT_UNITS, energy_unit
 from . import tables as tab
+from .table import latex_document, to_csv, to_latex
 
 
 @dataclass
@@ -35,20 +36,9 @@ class Report:
                 f"in {self.folder / 'figures'}, {len(self.structures)} structures in {self.folder / 'structures'}")
 
 
-def folder_study(folder):
-    """The study a folder was run with (its copy of the recipe)."""
-    from ..study.recipe import parse_recipe
-
-    recipe = Path(folder) / "recipe.toml"
-    if not recipe.exists():
-        raise InputError(f"{folder} is not a study folder (no recipe.toml): run `fourfold run RECIPE --out {folder}` "
-                         "first")
-    return parse_recipe(recipe.read_text(encoding="utf-8"), str(recipe))
-
-
 def _write_text(path: Path, text: str) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
-    partial = path.with_name(f".{path.name}.partial")
+    partial = path.with_name(f".{path.name}.{os.getpid()}.partial")  # unique: two writers never share one
     partial.write_text(text, encoding="utf-8")
     os.replace(partial, path)
     return path
@@ -58,14 +48,14 @@ def write_tables(comparison, folder: Path, unit: str, formats=tab.FORMATS) -> li
     tables = tab.study_tables(comparison, unit)
     written = []
     if "csv" in formats:
-        written += [_write_text(folder / f"{t.name}.csv", tab.to_csv(t)) for t in tables if t.tidy]
+        written += [_write_text(folder / f"{t.name}.csv", to_csv(t)) for t in tables if t.tidy]
     shown = [t for t in tables if t.display]
     if "md" in formats:
         written.append(_write_text(folder / "report.md", tab.markdown_report(shown, comparison, unit)))
     if "tex" in formats:
-        written += [_write_text(folder / f"{t.name}.tex", tab.to_latex(t)) for t in shown]
+        written += [_write_text(folder / f"{t.name}.tex", to_latex(t)) for t in shown]
         written.append(_write_text(folder / "report.tex",
-                                   tab.latex_document(shown, comparison.title, [t.name for t in shown])))
+                                   latex_document(shown, comparison.title, [t.name for t in shown])))
     if "json" in formats:
         written.append(_write_text(folder / "report.json", tab.to_json(tables, comparison, unit)))
     return written
@@ -87,7 +77,7 @@ def write_structures(comparison, results_by_key: dict, folder: Path, unit: str) 
     from ..compute.xtb_engine import XTB_SPIN_WARNING
     from .export import structure_filename, write_extxyz
 
-    suffix = tab.unit_suffix(unit)
+    u = energy_unit(unit)
     written = []
     for c in comparison.complexes:
         for r in c.records:
@@ -98,7 +88,7 @@ def write_structures(comparison, results_by_key: dict, folder: Path, unit: str) 
             atoms.info.update({
                 "formula": c.formula, "arrangement": r.arrangement, "isomer": r.isomer, "spin2s": r.spin2s,
                 "multiplicity": r.spin2s + 1, "relaxation": r.kind, "energy_hartree": r.energy_hartree,
-                f"relative_energy_{suffix}": convert_energy(r.relative_kj_mol, "kj", unit),
+                f"relative_energy_{u.suffix}": u.from_kj_mol(r.relative_kj_mol),
                 "level": c.level, "engine": r.engine, "converged": bool(r.converged),
                 "tau4": r.tau4, "nearest_shape": r.nearest_shape, "job_key": r.job_key,
             })
@@ -111,24 +101,19 @@ def write_structures(comparison, results_by_key: dict, folder: Path, unit: str) 
     return written
 
 
-def write_report(folder, study=None, unit: str = "kj", formats=tab.FORMATS, store_url: str | None = None) -> Report:
-    """Write tables, figures and structures for a study folder; the study defaults to the folder's recipe and
-    the results to the folder's results.db (``store_url`` names another store, e.g. PostgreSQL)."""
-    from ..study.store import ResultStore
-    from .comparison import build_comparison
+def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS) -> Report:
+    """Write tables, figures and structures of ``study`` into ``folder`` from the results in ``store`` (a
+    fourfold.study.store.ResultStore: the folder's results.db or a PostgreSQL store)."""
+    from ..verdict.comparison import build_comparison
 
     folder = Path(folder)
-    unit = canonical_unit(unit)
-    if unit not in {canonical_unit(u) for u in tab.ENERGY_UNITS}:
-        raise InputError(f"report units must be one of {', '.join(tab.ENERGY_UNITS)}, got {UNIT_LABELS[unit]}")
+    unit = energy_unit(unit).name
+    if unit not in {energy_unit(u).name for u in REPORT_UNITS}:
+        raise InputError(f"report units must be one of {', '.join(REPORT_UNITS)}, got {energy_unit(unit).label}")
     unknown = [f for f in formats if f not in tab.FORMATS]
     if unknown:
         raise InputError(f"unknown table format {unknown[0]!r}: use {', '.join(tab.FORMATS)}")
-    study = study if study is not None else folder_study(folder)
-    if store_url is None and not (folder / "results.db").exists():
-        raise InputError(f"{folder} is not a study folder (no results.db): run `fourfold run RECIPE --out {folder}` "
-                         "first")
-    results = {r["job_key"]: r for r in ResultStore(store_url or folder / "results.db").results()}
+    results = {r["job_key"]: r for r in store.results()}
     comparison = build_comparison(study, results)
     report = Report(folder, unit, comparison)
     report.tables = write_tables(comparison, folder / "tables", unit, formats)

@@ -17,73 +17,29 @@ Warnings (the GFN2-xTB caveat among them) go below every energy table and into e
 
 from __future__ import annotations
 
-import csv
-import io
 import json
-import re
-from dataclasses import dataclass, field
 
 from ..chem.complex import spin_label
-from ..units import UNIT_LABELS, canonical_unit, convert_energy
-from .markup import formula_latex, formula_unicode, multiplicity_word, slug
-from .text import UNIT_DIGITS, UNIT_HEADERS
+from ..chem.notation import formula_slug
+from ..geometry.polyhedra import arrangement_rank
+from ..units import energy_unit
+from .markup import multiplicity_word
+from .table import Column, Table, json_rows, to_markdown
 
-ENERGY_UNITS = ("kj", "kcal", "ev", "cm")
 FORMATS = ("csv", "md", "tex", "json")
-_SUFFIX = {"kj_mol": "kj_mol", "kcal_mol": "kcal_mol", "ev": "ev", "cm": "cm-1", "hartree": "hartree"}
-_TEX_UNIT = {"kj_mol": r"kJ\,mol$^{-1}$", "kcal_mol": r"kcal\,mol$^{-1}$", "ev": "eV", "cm": r"cm$^{-1}$",
-             "hartree": r"$E_\mathrm{h}$"}
-_ARRANGEMENT_ORDER = {"T-4": 0, "SP-4": 1, "SS-4": 2, "vTBPY-4": 3}
-
-
-@dataclass(frozen=True)
-class Column:
-    key: str  # machine name (CSV, JSON), unit in the name
-    text: str  # header for Markdown
-    tex: str  # header for LaTeX
-    kind: str = "text"  # text | formula | number | bool
-    digits: int = 1
-    where: str = "all"  # all | data (CSV/JSON only) | display (Markdown/LaTeX only)
-
-
-@dataclass
-class Table:
-    name: str  # file stem
-    title: str  # may hold "{formula}", filled in each output's markup
-    columns: list[Column]
-    rows: list[dict]
-    notes: list[str] = field(default_factory=list)  # caveats
-    findings: list[str] = field(default_factory=list)  # verdict lines printed under the table
-    tidy: bool = True  # exported as CSV/JSON (display-only tables are not)
-    display: bool = True  # written as Markdown/LaTeX (the long tidy states table is not: per-complex ones are)
-    formula: str = ""
-
-    def heading(self, style: str) -> str:
-        """The title in Markdown ('md') or LaTeX ('tex'), the formula marked up."""
-        mark, escape = (formula_latex, tex_escape) if style == "tex" else (formula_unicode, str)
-        return mark(self.formula).join(escape(part) for part in self.title.split("{formula}"))
-
-    def column(self, key: str) -> list:
-        return [row.get(key) for row in self.rows]
-
-
-def unit_suffix(unit: str) -> str:
-    """Column-name suffix of an energy unit: 'kj' -> 'kj_mol', 'cm' -> 'cm-1'."""
-    return _SUFFIX[canonical_unit(unit)]
 
 
 def _energy_column(key_stem: str, text: str, tex: str, unit: str, where: str = "all") -> Column:
-    u = canonical_unit(unit)
-    return Column(f"{key_stem}_{_SUFFIX[u]}", f"{text} / {UNIT_HEADERS[u]}", f"{tex} / {_TEX_UNIT[u]}", "number",
-                  UNIT_DIGITS[u], where)
+    u = energy_unit(unit)
+    return Column(f"{key_stem}_{u.suffix}", f"{text} / {u.header}", f"{tex} / {u.tex}", "number", u.digits, where)
 
 
 def _in(value_kj_mol, unit):
-    return None if value_kj_mol is None else convert_energy(value_kj_mol, "kj", unit)
+    return energy_unit(unit).from_kj_mol(value_kj_mol)
 
 
 def _sorted_records(records):
-    return sorted(records, key=lambda r: (_ARRANGEMENT_ORDER.get(r.arrangement, 9), r.isomer, r.spin2s, r.kind))
+    return sorted(records, key=lambda r: (arrangement_rank(r.arrangement), r.isomer, r.spin2s, r.kind))
 
 
 def _note(record) -> str:
@@ -175,22 +131,22 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
                "nearest_shape": shaped.nearest_shape}
         for kind in kinds:
             r = by_kind.get(kind)
-            row[f"relative_energy_{kind}_{unit_suffix(unit)}"] = None if r is None else _in(r.relative_kj_mol, unit)
-        row[f"estimate_energy_{unit_suffix(unit)}"] = _in(first.estimate_kj_mol, unit)
+            row[f"relative_energy_{kind}_{energy_unit(unit).suffix}"] = None if r is None else _in(r.relative_kj_mol, unit)
+        row[f"estimate_energy_{energy_unit(unit).suffix}"] = _in(first.estimate_kj_mol, unit)
         row["converged"] = " / ".join(f"{k}: {_yes_no(by_kind[k].converged)}" if len(kinds) > 1
                                       else _yes_no(by_kind[k].converged) for k in kinds if k in by_kind)
         row["note"] = "; ".join(f"{k}: {n}" if len(kinds) > 1 else n
                                 for k in kinds if k in by_kind and (n := _note(by_kind[k])))
         rows.append(row)
     title = f"{{formula}} (d{c.d_electrons}), level {c.level}: energies relative to the lowest state"
-    return Table(f"states_{slug(c.formula)}", title, columns, rows, _complex_warnings(c, warnings),
+    return Table(f"states_{formula_slug(c.formula)}", title, columns, rows, _complex_warnings(c, warnings),
                  _verdicts(c, unit), tidy=False, formula=c.formula)
 
 
 def _verdicts(c, unit: str) -> list[str]:
     """Computed vs estimated ground state, then ΔE(SP-4 − T-4) per spin with the difference."""
-    u = canonical_unit(unit)
-    digits, label = UNIT_DIGITS[u], UNIT_HEADERS[u]
+    u = energy_unit(unit)
+    digits, label = u.digits, u.header
     g, e = c.computed_ground, c.estimate.ground
     computed = "not computed" if g is None else _state_words(g.arrangement, g.isomer, g.spin2s)
     verdict = "" if c.agrees() is None else (" (agree)" if c.agrees() else " (disagree)")
@@ -318,7 +274,7 @@ def _lowest_per_arrangement(records):
         key = (r.arrangement, r.isomer)
         if key not in best or r.energy_hartree < best[key].energy_hartree:
             best[key] = r
-    return [best[k] for k in sorted(best, key=lambda k: (_ARRANGEMENT_ORDER.get(k[0], 9), k[1]))]
+    return [best[k] for k in sorted(best, key=lambda k: (arrangement_rank(k[0]), k[1]))]
 
 
 def path_table(comparison, unit: str) -> Table:
@@ -351,7 +307,6 @@ def path_table(comparison, unit: str) -> Table:
 
 def study_tables(comparison, unit: str = "kj") -> list[Table]:
     """Every table of a comparison in one energy unit; the path table only when the study has path points."""
-    unit = canonical_unit(unit)
     tables = [summary_table(comparison, unit), deltas_table(comparison, unit), states_table(comparison, unit)]
     tables += [complex_table(c, unit, comparison.warnings) for c in comparison.complexes]
     tables.append(ligand_field_table(comparison))
@@ -360,135 +315,9 @@ def study_tables(comparison, unit: str = "kj") -> list[Table]:
     return tables
 
 
-# ---- writers -------------------------------------------------------------------------------------------
-
-def _data_columns(table: Table) -> list[Column]:
-    return [c for c in table.columns if c.where != "display"]
-
-
-def _display_columns(table: Table) -> list[Column]:
-    return [c for c in table.columns if c.where != "data"]
-
-
-def _csv_value(value):
-    if value is None:
-        return ""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, float):
-        return repr(value)  # shortest text that reads back to the same float
-    return value
-
-
-def to_csv(table: Table) -> str:
-    columns = _data_columns(table)
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow([c.key for c in columns])
-    for row in table.rows:
-        writer.writerow([_csv_value(row.get(c.key)) for c in columns])
-    return out.getvalue()
-
-
-def _shown(value, column: Column, style: str) -> str:
-    empty = "—" if style == "md" else "--"
-    if value is None or value == "":
-        return empty
-    if column.kind == "bool" or isinstance(value, bool):
-        return "yes" if value else "no"
-    if column.kind == "number" and isinstance(value, (int, float)):
-        text = f"{value:.{column.digits}f}"
-        if text.lstrip("-").strip("0.") == "":
-            text = text.lstrip("-")  # no "−0.0"
-        return text.replace("-", "−") if style == "md" else f"${text}$"
-    if column.kind == "formula":
-        return formula_unicode(value) if style == "md" else formula_latex(value)
-    return _md_escape(str(value)) if style == "md" else tex_escape(str(value))
-
-
-def _md_escape(text: str) -> str:
-    return text.replace("|", "\\|")
-
-
-def to_markdown(table: Table, heading_level: int = 3, skip_notes=()) -> str:
-    columns = _display_columns(table)
-    lines = [f"{'#' * heading_level} {table.heading('md')}", ""]
-    lines.append("| " + " | ".join(c.text for c in columns) + " |")
-    lines.append("|" + "|".join("---:" if c.kind == "number" else ":---" for c in columns) + "|")
-    for row in table.rows:
-        lines.append("| " + " | ".join(_shown(row.get(c.key), c, "md") for c in columns) + " |")
-    for finding in table.findings:
-        lines += ["", finding]
-    for note in (n for n in table.notes if n not in skip_notes):
-        lines += ["", f"> **Note.** {note}"]
-    return "\n".join(lines) + "\n"
-
-
-_TEX_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
-                "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
-_TEX_UNICODE = {"−": "$-$", "—": "---", "–": "--", "°": r"$^\circ$", "⟨": r"$\langle$", "⟩": r"$\rangle$",
-                "²": r"$^2$", "′": "$'$", "τ": r"$\tau$", "σ": r"$\sigma$", "π": r"$\pi$", "Δ": r"$\Delta$",
-                "→": r"$\rightarrow$", "×": r"$\times$", "≈": r"$\approx$", "₄": r"$_4$", "⁻": "$^-$", "¹": "$^1$",
-                "ⁿ": "$^n$", "Å": r"\AA{}", "ø": r"\o{}", "é": r"\'e", "ü": r'\"u', "ö": r'\"o', "ä": r'\"a'}
-
-
-_TEX_SYMBOLS = {"e_σ": r"$e_\sigma$", "e_π": r"$e_\pi$", "⁻¹": "$^{-1}$"}  # symbols in notes, set as such
-_TEX_SYMBOL_SPLIT = re.compile("(" + "|".join(map(re.escape, _TEX_SYMBOLS)) + ")")
-
-
-def _tex_characters(text: str) -> str:
-    out = []
-    for ch in text:
-        if ch in _TEX_SPECIAL:
-            out.append(_TEX_SPECIAL[ch])
-        elif ch in _TEX_UNICODE:
-            out.append(_TEX_UNICODE[ch])
-        elif ord(ch) < 128:
-            out.append(ch)
-        else:
-            out.append("?")  # pdflatex stops on an unknown character; a visible mark is better
-    return "".join(out)
-
-
-def tex_escape(text: str) -> str:
-    """Plain text for LaTeX: specials escaped, the few Unicode signs fourfold writes mapped, others dropped."""
-    return "".join(_TEX_SYMBOLS.get(part) or _tex_characters(part) for part in _TEX_SYMBOL_SPLIT.split(text))
-
-
-def to_latex(table: Table) -> str:
-    """A booktabs tabular (no siunitx), then the notes; ready for \\input inside a table float."""
-    columns = _display_columns(table)
-    spec = "".join("r" if c.kind == "number" else "l" for c in columns)
-    lines = [f"% fourfold: {table.heading('tex')}", rf"\begin{{tabular}}{{{spec}}}", r"\toprule",
-             " & ".join(c.tex for c in columns) + r" \\", r"\midrule"]
-    for row in table.rows:
-        cells = [_shown(row.get(c.key), c, "tex") for c in columns]
-        # a row opening with "[" (a formula) would be read as the optional argument of the \\ or \midrule before it
-        cells[0] = "{}" + cells[0] if cells[0].startswith("[") else cells[0]
-        lines.append(" & ".join(cells) + r" \\")
-    lines += [r"\bottomrule", r"\end{tabular}"]
-    for finding in table.findings:
-        lines.append(rf"\par\smallskip{{\footnotesize {tex_escape(finding)}\par}}")
-    for note in table.notes:
-        lines.append(rf"\par\smallskip{{\footnotesize Note: {tex_escape(note)}\par}}")
-    return "\n".join(lines) + "\n"
-
-
-def latex_document(tables: list[Table], title: str, inputs: list[str]) -> str:
-    """A standalone document that \\input's each table file (booktabs and geometry only)."""
-    body = []
-    for table, name in zip(tables, inputs):
-        body += [r"\begin{table}[htbp]\centering\small", rf"\caption{{{table.heading('tex')}}}",
-                 rf"\input{{{name}}}", r"\end{table}", ""]
-    return "\n".join([r"\documentclass{article}", r"\usepackage[T1]{fontenc}", r"\usepackage{booktabs}",
-                      r"\usepackage[margin=15mm,landscape]{geometry}", rf"\title{{{tex_escape(title)}}}", r"\date{}",
-                      r"\begin{document}", r"\maketitle", *body, r"\end{document}", ""])
-
-
 def markdown_report(tables: list[Table], comparison, unit: str) -> str:
     """All tables in one Markdown file: the caveats once at the top, then each table with its own notes."""
-    unit = canonical_unit(unit)
-    lines = [f"# {comparison.title}", "", f"Level: `{comparison.level}`. Energies in {UNIT_LABELS[unit]} "
+    lines = [f"# {comparison.title}", "", f"Level: `{comparison.level}`. Energies in {energy_unit(unit).label} "
              "(CODATA 2018 conversions), relative to each complex's lowest computed state; estimates relative to "
              "the estimate's lowest state.", ""]
     if comparison.warnings:
@@ -499,12 +328,11 @@ def markdown_report(tables: list[Table], comparison, unit: str) -> str:
 
 
 def to_json(tables: list[Table], comparison, unit: str) -> str:
-    unit = canonical_unit(unit)
+    u = energy_unit(unit)
     data = {
-        "title": comparison.title, "level": comparison.level, "energy_unit": UNIT_LABELS[unit],
-        "column_suffix": _SUFFIX[unit], "warnings": list(comparison.warnings),
-        "tables": {t.name: [{c.key: row.get(c.key) for c in _data_columns(t)} for row in t.rows]
-                   for t in tables if t.tidy},
+        "title": comparison.title, "level": comparison.level, "energy_unit": u.label,
+        "column_suffix": u.suffix, "warnings": list(comparison.warnings),
+        "tables": {t.name: json_rows(t) for t in tables if t.tidy},
         "notes": {t.name: t.notes for t in tables if t.notes},
         "estimates": {c.formula: c.estimate.as_dict() for c in comparison.complexes},
     }

@@ -4,7 +4,7 @@ The driver stays the only writer of the store: each job is one Dask task that re
 The task does not run the chemistry in the worker process itself; it starts the job in a process of its
 own (`python -c` job_process_main), as the local pool does, because only a process of its own gives
   - the job's output in its log file (redirecting a worker's stdout would catch every task of it),
-  - its thread count: OMP/BLAS variables set before any library loads, and `pyscf.lib.num_threads`,
+  - its thread count, limited inside that process (threadpoolctl and `pyscf.lib.num_threads`),
   - a crash (exception, segfault, the OOM killer taking the job) as a failed result, worker unharmed,
   - the per-job timeout: Dask cannot stop a running task, so the task kills the job's process once the
     job has run `timeout_s` seconds (counted from the job's start on a worker, not from submission).
@@ -31,9 +31,10 @@ import tomllib
 from pathlib import Path
 
 from ..errors import ComputeError, InputError
-from .runner import _FAULT_ENV, _child, _exit_reason, complete_failure, job_paths
+from .process import FAULT_ENV, complete_failure, exit_reason, job_paths, job_process_body
 
 _SUBMIT_COMMANDS = {"slurm": "sbatch", "pbs": "qsub"}
+# Exported in each batch job's script, so the Dask worker's own numpy starts with the job's thread count.
 THREAD_ENV = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 # The scheduler fourfold starts tries a job whose worker died once more, then records it failed.
 WORKER_DEATHS_RETRIED = 1
@@ -49,18 +50,14 @@ def _first_line(error: BaseException) -> str:
 
 def job_process_main() -> None:
     """Body of a job's own process: arguments (pickled by the task that started it) on stdin, the
-    result back on the original stdout; everything the job prints goes to its log (runner._child)."""
-    worker, task, spec, parent, log_path, chk_path, threads, label = pickle.load(sys.stdin.buffer)
+    result back on the original stdout; everything the job prints goes to its log (job_process_body)."""
+    worker, job, parent, log_path, chk_path, threads = pickle.load(sys.stdin.buffer)
     _die_with_worker(worker)
     from multiprocessing.connection import Connection
 
     result_pipe = Connection(os.dup(1), readable=False)
     os.dup2(2, 1)  # stderr is the job's log already: nothing printed from here on can reach the result pipe
-    if spec["engine"]["method"] != "xtb":
-        from pyscf import lib
-
-        lib.num_threads(threads)
-    _child(task, spec, parent, log_path, chk_path, threads, label, result_pipe)
+    job_process_body(job, parent, log_path, chk_path, threads, result_pipe)
 
 
 def _die_with_worker(worker: int) -> None:
@@ -80,28 +77,27 @@ def _die_with_worker(worker: int) -> None:
 def _kill_worker_fault(label: str) -> None:
     # Test hook beside the runner's (FOURFOLD_FAULT): "kill-worker:TEXT" kills the Dask worker process
     # that picks up the job whose label contains TEXT, as a lost node would.
-    for item in filter(None, os.environ.get(_FAULT_ENV, "").split(",")):
+    for item in filter(None, os.environ.get(FAULT_ENV, "").split(",")):
         mode, _, text = item.partition(":")
         if mode == "kill-worker" and text and text in label:
             os.kill(os.getpid(), signal.SIGKILL)
 
 
-def run_on_worker(task, spec, parent, log_path, chk_path, threads: int, label: str, timeout_s: float) -> dict:
+def run_on_worker(job, parent, log_path, chk_path, threads: int, timeout_s: float) -> dict:
     """The Dask task: one job in a process of its own, its result as plain data."""
     from multiprocessing.connection import Connection
 
-    _kill_worker_fault(label)
+    _kill_worker_fault(job.label)
     for path in filter(None, (log_path, chk_path)):
         Path(path).parent.mkdir(parents=True, exist_ok=True)  # a worker without the shared folder
-    env = {**os.environ, **{name: str(threads) for name in THREAD_ENV}}
     code = "from fourfold.study.cluster import job_process_main; job_process_main()"
     with open(log_path, "ab") as log:
         process = subprocess.Popen([sys.executable, "-c", code], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                                   stderr=log, env=env)
+                                   stderr=log)
     reader = Connection(os.dup(process.stdout.fileno()), writable=False)
     process.stdout.close()
     try:
-        process.stdin.write(pickle.dumps((os.getpid(), task, spec, parent, log_path, chk_path, threads, label)))
+        process.stdin.write(pickle.dumps((os.getpid(), job, parent, log_path, chk_path, threads)))
         process.stdin.close()
     except BrokenPipeError:  # the process died at start; its exit status says why
         pass
@@ -116,7 +112,7 @@ def run_on_worker(task, spec, parent, log_path, chk_path, threads: int, label: s
         result = {"status": "failed", "reason": f"timeout after {timeout_s:.0f} s"}
     reader.close()
     process.wait()
-    return result if result is not None else {"status": "failed", "reason": _exit_reason(process.returncode)}
+    return result if result is not None else {"status": "failed", "reason": exit_reason(process.returncode)}
 
 
 # ------------------------------------------------------------------------------------------ driver side
@@ -148,8 +144,8 @@ class DaskPool:
     def submit(self, job, parent: dict | None) -> None:
         log_path, chk_path = job_paths(self.out_dir, job)
         # The job key as the task key: a resumed driver rejoins a job still running for a killed one.
-        future = self.client.submit(run_on_worker, job.task, job.spec, parent, log_path, chk_path, self.threads,
-                                    job.label, self.timeout_s, key=f"fourfold-{job.key}")
+        future = self.client.submit(run_on_worker, job, parent, log_path, chk_path, self.threads, self.timeout_s,
+                                    key=f"fourfold-{job.key}")
         self._running[future] = (job, parent)
         future.add_done_callback(lambda _: self._ended.set())
 

@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cache
 from importlib import metadata
 
@@ -45,10 +45,48 @@ def code_versions() -> dict[str, str]:
 
 
 @dataclass(frozen=True)
+class JobSpec:
+    """Everything a worker needs to run one job, as typed fields. ``to_dict()`` is the plain form the job
+    key and the store see; its keys and values are those of the untyped dicts fourfold wrote before
+    JobSpec existed, so keys of existing stores do not move (tests/test_jobs.py pins them)."""
+
+    formula: str
+    complex: dict  # complex_spec(): metal, oxidation state, ligand names, custom ligands
+    charge: int
+    arrangement: str  # an arrangement symbol, or "path" for a point on the D2d path
+    isomer: str
+    spin2s: int
+    kind: str  # held | free
+    max_steps: int
+    engine: dict  # geometry_engine() / relax_engine() / single_point_engine()
+    trans_angle_deg: float | None = None  # path points only
+
+    @property
+    def method(self) -> str:
+        return self.engine["method"]
+
+    @property
+    def is_path_point(self) -> bool:
+        return self.arrangement == "path"
+
+    def to_dict(self) -> dict:
+        data = {"formula": self.formula, "complex": self.complex, "charge": self.charge,
+                "arrangement": self.arrangement, "isomer": self.isomer, "spin2s": self.spin2s, "kind": self.kind,
+                "max_steps": self.max_steps, "engine": self.engine}
+        if self.trans_angle_deg is not None:
+            data["trans_angle_deg"] = self.trans_angle_deg
+        return data
+
+    @classmethod
+    def from_dict(cls, data: dict) -> JobSpec:
+        return cls(**data)
+
+
+@dataclass(frozen=True)
 class Job:
     key: str
     task: str
-    spec: dict  # everything the worker needs, plain JSON data
+    spec: JobSpec
     parent: str | None
     final: bool  # its energy is the one the comparison uses for its state
     label: str = field(compare=False)
@@ -56,7 +94,7 @@ class Job:
     @property
     def state(self) -> tuple:
         s = self.spec
-        return (s["formula"], s["arrangement"], s["isomer"], s["spin2s"], s["kind"], s.get("trans_angle_deg"))
+        return (s.formula, s.arrangement, s.isomer, s.spin2s, s.kind, s.trans_angle_deg)
 
 
 def complex_spec(cx: Complex) -> dict:
@@ -96,13 +134,10 @@ class _Builder:
     def __init__(self):
         self.jobs: dict[str, Job] = {}
 
-    def add(self, task: str, spec: dict, parent: str | None, start_positions: list | None, final: bool, label: str) -> str:
-        payload = {"task": task, "spec": spec, "parent": parent, "start": start_positions}
-        key = job_key(payload)
-        if key in self.jobs:
-            if final and not self.jobs[key].final:
-                self.jobs[key] = Job(key, task, spec, parent, True, label)
-        else:
+    def add(self, task: str, spec: JobSpec, parent: str | None, start_positions: list | None, final: bool,
+            label: str) -> str:
+        key = job_key({"task": task, "spec": spec.to_dict(), "parent": parent, "start": start_positions})
+        if key not in self.jobs or (final and not self.jobs[key].final):
             self.jobs[key] = Job(key, task, spec, parent, final, label)
         return key
 
@@ -124,8 +159,6 @@ def geometry_engine(level) -> dict:
 
 def _dft_engine(level, basis: str) -> dict:
     # Only what changes the numbers goes into the key: the preset's name and the chaining fields do not.
-    from dataclasses import replace
-
     return replace(level, name=level.method, basis=basis, geometry_from="self", single_point_basis=None).to_dict()
 
 
@@ -137,49 +170,49 @@ def single_point_engine(level) -> dict:
     return _dft_engine(level, level.single_point_basis or level.basis)
 
 
-def _state_chain(builder: _Builder, level, base: dict, atoms, kind: str, label: str, path: bool) -> None:
-    xtb_engine = geometry_engine(level)
-    relax_task = "path-point" if path else f"relax-{kind}"
+def _state_chain(builder: _Builder, level, base: JobSpec, atoms, label: str) -> None:
+    xtb = replace(base, engine=geometry_engine(level))
+    relax_task = "path-point" if base.is_path_point else f"relax-{base.kind}"
+    start = _rounded_positions(atoms)
     if level.method == "xtb":
-        builder.add(relax_task, {**base, "engine": xtb_engine}, None, _rounded_positions(atoms), True, label)
+        builder.add(relax_task, xtb, None, start, True, label)
         return
-    if level.geometry_from == "xtb" or path:
-        geometry = builder.add(relax_task, {**base, "engine": xtb_engine}, None, _rounded_positions(atoms), False, label)
-        builder.add("single-point", {**base, "engine": single_point_engine(level)}, geometry, None, True, label)
+    if level.geometry_from == "xtb" or base.is_path_point:
+        geometry = builder.add(relax_task, xtb, None, start, False, label)
+        builder.add("single-point", replace(base, engine=single_point_engine(level)), geometry, None, True, label)
         return
-    pre = builder.add(relax_task if kind == "held" else "relax-held",
-                      {**base, "kind": "held", "engine": xtb_engine}, None, _rounded_positions(atoms), False, label)
+    pre = builder.add(relax_task if base.kind == "held" else "relax-held", replace(xtb, kind="held"), None, start,
+                      False, label)
     has_sp = level.single_point_basis is not None
-    dft = builder.add(relax_task, {**base, "engine": relax_engine(level)}, pre, None, not has_sp, label)
+    dft = builder.add(relax_task, replace(base, engine=relax_engine(level)), pre, None, not has_sp, label)
     if has_sp:
-        builder.add("single-point", {**base, "engine": single_point_engine(level)}, dft, None, True, label)
+        builder.add("single-point", replace(base, engine=single_point_engine(level)), dft, None, True, label)
 
 
 def expand(study) -> list[Job]:
     """All jobs of a study, parents before children."""
     builder = _Builder()
+    max_steps = study.run.get("max_steps", 100)
     for entry in study.complexes:
         cx = entry.complex
         names = tuple(lig.name for lig in cx.ligands)
-        common = {"formula": cx.formula, "complex": complex_spec(cx), "charge": cx.charge}
+        common = {"formula": cx.formula, "complex": complex_spec(cx), "charge": cx.charge, "max_steps": max_steps,
+                  "engine": {}}
         for arrangement in entry.arrangements:
             for isomer in isomers(names, arrangement):
                 atoms = build(cx, arrangement, isomer)
                 for spin2s in entry.spins:
                     for kind in study.relaxations:
-                        base = {**common, "arrangement": arrangement, "isomer": isomer.label, "spin2s": spin2s,
-                                "kind": kind, "max_steps": study.run.get("max_steps", 100)}
+                        base = JobSpec(**common, arrangement=arrangement, isomer=isomer.label, spin2s=spin2s, kind=kind)
                         label = f"{cx.formula} {arrangement} {isomer.label} 2S={spin2s} {kind}".replace("  ", " ")
-                        _state_chain(builder, study.level, base, atoms, kind, label, path=False)
+                        _state_chain(builder, study.level, base, atoms, label)
         if study.path_points and "SP-4" in entry.arrangements:
-            sp_isomers = isomers(names, "SP-4")
-            for isomer in sp_isomers:
+            for isomer in isomers(names, "SP-4"):
                 for angle in path_angles_deg(study.path_points):
                     atoms = build_path_point(cx, angle, isomer.label)
                     for spin2s in entry.spins:
-                        base = {**common, "arrangement": "path", "isomer": isomer.label, "spin2s": spin2s,
-                                "kind": "held", "trans_angle_deg": round(angle, 6),
-                                "max_steps": study.run.get("max_steps", 100)}
+                        base = JobSpec(**common, arrangement="path", isomer=isomer.label, spin2s=spin2s, kind="held",
+                                       trans_angle_deg=round(angle, 6))
                         label = f"{cx.formula} path {angle:.1f}° {isomer.label} 2S={spin2s}".replace("  ", " ")
-                        _state_chain(builder, study.level, base, atoms, "held", label, path=True)
+                        _state_chain(builder, study.level, base, atoms, label)
     return list(builder.jobs.values())

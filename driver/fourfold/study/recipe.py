@@ -84,6 +84,13 @@ class Study:
     source_path: str
     source_text: str
     cluster: dict = field(default_factory=dict)  # [cluster]: batch jobs for --cluster; not part of any job key
+    ligand_tables: dict = field(default_factory=dict)  # the validated [ligands.NAME] tables, as written
+
+    def with_level(self, level) -> Study:
+        """The same study at another level (a preset name or a Level)."""
+        from dataclasses import replace
+
+        return replace(self, level=_level(self.source_path, level) if isinstance(level, str) else level)
 
 
 def _fail(path: str, where: str, message: str) -> InputError:
@@ -268,7 +275,7 @@ def parse_recipe(text: str, path: str = "<recipe>") -> Study:
             raise _fail(path, f"run.{key}", f"must be positive, got {value}")
     cluster = cluster_settings(path, data["cluster"]) if "cluster" in data else {}
     return Study(title, level, arrangements, tuple(dict.fromkeys(relaxations)), path_points, tuple(entries), run,
-                 path, text, cluster)
+                 path, text, cluster, dict(data.get("ligands", {})))
 
 
 def load_recipe(path) -> Study:
@@ -283,8 +290,58 @@ def load_recipe(path) -> Study:
     return parse_recipe(text, str(path))
 
 
+def scan_recipe_text(formula: str, level: str, relaxations=RELAXATION_KINDS, arrangements=("T-4", "SP-4"),
+                     spins=None) -> str:
+    """The recipe of a one-complex study: every arrangement × isomer × 2S at one level."""
+    import json
+
+    lines = [f"title = {json.dumps('Scan of ' + formula)}", f"level = {json.dumps(level)}",
+             f"arrangements = {json.dumps(list(arrangements))}", f"relaxations = {json.dumps(list(relaxations))}",
+             "", "[[complex]]", f"formula = {json.dumps(formula)}"]
+    if spins:
+        lines.append(f"spins = {json.dumps(list(spins))}")
+    return "\n".join(lines) + "\n"
+
+
 def recipe_for_formula(formula: str, level: str) -> Study:
     """A one-complex study (default arrangements, spins and relaxations) for `fourfold run --formula`."""
-    from .scan import scan_recipe_text
-
     return parse_recipe(scan_recipe_text(formula, level), "--formula")
+
+
+def _toml_level(level) -> dict:
+    # TOML has no null: custom_level reads "none" as None, so the table parses back to the same Level
+    return {k: ("none" if v is None else v) for k, v in level.to_dict().items()}
+
+
+def study_to_toml(study: Study) -> str:
+    """The study as a recipe: what it ran, with the level written out in full (not a preset's name, whose
+    settings may change between versions). Parsing the text gives a study with the same jobs."""
+    import tomli_w
+
+    data = {"title": study.title, "arrangements": list(study.arrangements), "relaxations": list(study.relaxations),
+            "path_points": study.path_points, "level": _toml_level(study.level)}
+    if study.run:
+        data["run"] = dict(study.run)
+    if study.cluster:
+        data["cluster"] = dict(study.cluster)
+    if study.ligand_tables:
+        data["ligands"] = study.ligand_tables
+    complexes = []
+    for entry in study.complexes:
+        spec = {"formula": entry.complex.formula, "spins": list(entry.spins)}
+        if entry.arrangements != study.arrangements:
+            spec["arrangements"] = list(entry.arrangements)
+        if entry.estimate_overrides:
+            spec["estimate"] = dict(entry.estimate_overrides)
+        complexes.append(spec)
+    data["complex"] = complexes
+    header = "# Written by fourfold from the study that ran (levels in full); `fourfold run` reads it back.\n"
+    return header + tomli_w.dumps(data)
+
+
+def load_folder_study(folder) -> Study:
+    """The study a study folder was run with (the recipe.toml the run wrote there)."""
+    recipe = Path(folder) / "recipe.toml"
+    if not recipe.exists():
+        raise InputError(f"{folder} is not a fourfold study folder (no recipe.toml): give the --out folder of a run")
+    return load_recipe(recipe)

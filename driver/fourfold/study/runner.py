@@ -11,7 +11,7 @@ from __future__ import annotations
 import fcntl
 import json
 import os
-import signal
+import socket
 import time
 from dataclasses import dataclass, field
 from multiprocessing import connection, get_context
@@ -19,15 +19,11 @@ from pathlib import Path
 
 from ..errors import InputError
 from .jobs import Job, code_versions, expand
+from .process import complete_failure, exit_reason, failed_result, job_paths, job_process_body
 from .store import ResultStore
 
 DEFAULT_TIMEOUT_S = 3600.0
 _POLL_S = 0.2
-# Test hook: FOURFOLD_FAULT="raise:TEXT" / "exit:TEXT" / "hang:TEXT" makes the job whose label contains TEXT
-# raise, end its process abruptly, or hang, so the reliability tests exercise real processes.
-_FAULT_ENV = "FOURFOLD_FAULT"
-
-
 @dataclass
 class RunSummary:
     total: int
@@ -41,13 +37,20 @@ class RunSummary:
 
 class RunLock:
     """An exclusive lock on an output folder, held by an open file: the kernel drops it when the holder
-    dies, so a killed run never blocks the next one."""
+    dies, so a killed run never blocks the next one. Re-entrant within one process, so a command can hold
+    it over running and reporting while run_study takes it again inside."""
+
+    _held: dict[Path, int] = {}  # folder -> nesting depth in this process
 
     def __init__(self, folder: Path):
-        self.path = Path(folder) / "run.lock"
+        self.folder = Path(folder).resolve()
+        self.path = self.folder / "run.lock"
         self._handle = None
 
     def __enter__(self):
+        if self.folder in RunLock._held:
+            RunLock._held[self.folder] += 1
+            return self
         self.path.parent.mkdir(parents=True, exist_ok=True)
         self._handle = open(self.path, "a+")
         try:
@@ -60,64 +63,18 @@ class RunLock:
                              "or choose another --out folder") from None
         self._handle.seek(0)
         self._handle.truncate()
-        self._handle.write(f"pid {os.getpid()}")
+        self._handle.write(f"pid {os.getpid()} on {socket.gethostname()}")
         self._handle.flush()
+        RunLock._held[self.folder] = 1
         return self
 
     def __exit__(self, *exc):
+        RunLock._held[self.folder] -= 1
+        if RunLock._held[self.folder]:
+            return
+        del RunLock._held[self.folder]
         fcntl.flock(self._handle, fcntl.LOCK_UN)
         self._handle.close()
-
-
-def _inject_fault(label: str) -> None:
-    for item in filter(None, os.environ.get(_FAULT_ENV, "").split(",")):
-        mode, _, text = item.partition(":")
-        if text and text in label:
-            if mode == "raise":
-                raise RuntimeError(f"injected failure for {label}")
-            if mode == "exit":
-                os._exit(3)
-            if mode == "hang":
-                time.sleep(10_000)
-
-
-def _child(task, spec, parent, log_path, chk_path, threads, label, conn):
-    """Worker process body: output to the job's log, then the job."""
-    log = os.open(log_path, os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o644)
-    os.dup2(log, 1)
-    os.dup2(log, 2)
-    try:
-        _inject_fault(label)
-        from ..compute.tasks import run_task
-
-        result = run_task(task, spec, parent, log_path=log_path, threads=threads, chk_path=chk_path)
-    except Exception as error:  # a failed job is a result; the driver records it
-        first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
-        result = {"status": "failed", "reason": f"{type(error).__name__}: {first}"}
-    conn.send(result)
-    conn.close()
-
-
-def _exit_reason(exitcode: int | None) -> str:
-    if exitcode is None:
-        return "worker vanished"
-    if exitcode < 0:
-        name = signal.Signals(-exitcode).name
-        hint = {"SIGKILL": " (killed: out of memory or by hand)", "SIGSEGV": " (segmentation fault)"}.get(name, "")
-        return f"worker died from {name}{hint}"
-    return f"worker exited with status {exitcode} before returning a result"
-
-
-def _failed(job: Job, reason: str, parent: dict | None) -> dict:
-    """A failure row: keeps the job's start geometry so the store has a structure to show."""
-    from ..compute.tasks import start_structure
-
-    try:
-        _, atoms = start_structure(job.spec, parent if parent and parent.get("status") == "done" else None)
-        symbols, positions = atoms.get_chemical_symbols(), atoms.get_positions().tolist()
-    except Exception:  # the spec itself is broken: still record the failure
-        symbols, positions = ["X"], [[0.0, 0.0, 0.0]]
-    return {"status": "failed", "reason": reason, "symbols": symbols, "positions_angstrom": positions, "converged": False}
 
 
 class _Running:
@@ -126,7 +83,10 @@ class _Running:
 
 
 def write_provenance(out_dir: Path, study) -> None:
-    (out_dir / "recipe.toml").write_text(study.source_text, encoding="utf-8")
+    """The folder's record of what ran: the Study written back as TOML (levels in full), and the versions."""
+    from .recipe import study_to_toml
+
+    (out_dir / "recipe.toml").write_text(study_to_toml(study), encoding="utf-8")
     (out_dir / "versions.json").write_text(json.dumps(code_versions(), indent=2) + "\n", encoding="utf-8")
 
 
@@ -186,11 +146,7 @@ class LocalPool:
     the driver loop needs; fourfold.study.cluster implements it on Dask."""
 
     def __init__(self, workers: int, threads: int, out_dir: Path, timeout_s: float):
-        # The fork server inherits this environment when it starts: its numpy (preloaded) and every job
-        # forked from it then use `threads` BLAS/OpenMP threads, not one per core each (oversubscription
-        # measured 3× slower).
-        for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-            os.environ[name] = str(threads)
+        # Each job limits its own BLAS/OpenMP threads (job_process_body): the caller's environment is left alone.
         self._context = get_context("forkserver")
         self._context.set_forkserver_preload(list(JOB_MODULES))
         self.workers, self.threads, self.out_dir, self.timeout_s = workers, threads, out_dir, timeout_s
@@ -205,8 +161,8 @@ class LocalPool:
     def submit(self, job: Job, parent: dict | None) -> None:
         receive, send = self._context.Pipe(duplex=False)
         log_path, chk_path = job_paths(self.out_dir, job)
-        process = self._context.Process(target=_child, daemon=True,
-                                        args=(job.task, job.spec, parent, log_path, chk_path, self.threads, job.label, send))
+        process = self._context.Process(target=job_process_body, daemon=True,
+                                        args=(job, parent, log_path, chk_path, self.threads, send))
         process.start()
         send.close()
         self._running.append(_Running(job, process, receive, time.monotonic(), parent))
@@ -232,7 +188,7 @@ class LocalPool:
                 result = {"status": "failed", "reason": f"timeout after {self.timeout_s:.0f} s"}
             item.process.join(timeout=5)
             if result is None:
-                result = {"status": "failed", "reason": _exit_reason(item.process.exitcode)}
+                result = {"status": "failed", "reason": exit_reason(item.process.exitcode)}
             item.conn.close()
             self._running.remove(item)
             ended.append((item.job, complete_failure(item.job, result, item.parent)))
@@ -243,20 +199,6 @@ class LocalPool:
             item.process.kill()
 
 
-def job_paths(out_dir: Path, job: Job) -> tuple[str, str | None]:
-    """Per-job log file, and the orbital file of a DFT job (xTB jobs keep none)."""
-    log_path = str(out_dir / "logs" / f"{job.key[:16]}.log")
-    chk_path = str(out_dir / "scratch" / f"{job.key[:16]}.chk") if job.spec["engine"]["method"] != "xtb" else None
-    return log_path, chk_path
-
-
-def complete_failure(job: Job, result: dict, parent: dict | None) -> dict:
-    """A failure without a structure gets the job's start geometry, so every stored row has one."""
-    if result.get("status") == "failed" and "symbols" not in result:
-        return {**_failed(job, result.get("reason", "unknown"), parent), **result}
-    return result
-
-
 def _drive(pending, stored, store, pool, summary, progress):
     if progress:
         progress(summary, [])
@@ -265,7 +207,7 @@ def _drive(pending, stored, store, pool, summary, progress):
             # Jobs whose parent failed are failures too (recorded, so a --retry-failed rerun picks them up).
             for job in [j for j in pending if j.parent and stored.get(j.parent) == "failed"]:
                 pending.remove(job)
-                _finish(job, _failed(job, "parent job failed", None), store, stored, summary)
+                _finish(job, failed_result(job, "parent job failed", None), store, stored, summary)
             ready = [j for j in pending if not j.parent or stored.get(j.parent) == "done"]
             while ready and pool.free_slots() > 0:
                 job = ready.pop(0)

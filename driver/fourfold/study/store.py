@@ -113,9 +113,10 @@ class ResultStore:
 
         self.remove([job.key])
         atoms = Atoms(symbols=result["symbols"], positions=np.asarray(result["positions_angstrom"], dtype=float))
-        pairs = {"job_key": job.key, "status": result["status"], "engine": job.spec["engine"]["method"]}
+        spec = job.spec.to_dict()
+        pairs = {"job_key": job.key, "status": result["status"], "engine": job.spec.method}
         for column, name in _COLUMNS.items():
-            value = job.task if name == "task" else job.spec.get(name)
+            value = job.task if name == "task" else spec.get(name)
             if value is not None:
                 pairs[column] = value
         if result.get("energy_hartree") is not None:
@@ -123,7 +124,7 @@ class ResultStore:
         pairs["converged"] = bool(result.get("converged", False))
         data = {k: v for k, v in result.items()
                 if k not in ("symbols", "positions_angstrom", "energy_hartree", "converged", "status")}
-        data["spec"] = job.spec
+        data["spec"] = spec
         data["parent"] = job.parent
         data["final"] = job.final
         data["label"] = job.label

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
-from ..chem.complex import spin_label
 from ..units import convert_energy
 
 SPIN_CONTAMINATION_LIMIT = 0.1  # |⟨S²⟩ − S(S+1)| above this is flagged (DESIGN.md)
@@ -134,11 +133,6 @@ class Comparison:
             })
         return out
 
-    def text(self, unit: str = "kj") -> str:
-        from .text import comparison_text
-
-        return comparison_text(self, unit)
-
 
 def build_comparison(study, results_by_key: dict) -> Comparison:
     """Comparison from a study and {job_key: stored result} (missing keys are pending jobs)."""
@@ -146,17 +140,17 @@ def build_comparison(study, results_by_key: dict) -> Comparison:
     from ..study.jobs import expand
 
     all_final = [j for j in expand(study) if j.final]
-    final_jobs = [j for j in all_final if j.spec["arrangement"] != "path"]
-    path_jobs = [j for j in all_final if j.spec["arrangement"] == "path"]
+    final_jobs = [j for j in all_final if not j.spec.is_path_point]
+    path_jobs = [j for j in all_final if j.spec.is_path_point]
     warnings = []
     complexes = []
     for entry in study.complexes:
         cx = entry.complex
         est = estimate(cx, entry.arrangements, entry.estimate_overrides, spins=entry.spins)
         records = [_record(cx.formula, job, results_by_key.get(job.key), est, warnings)
-                   for job in final_jobs if job.spec["formula"] == cx.formula]
+                   for job in final_jobs if job.spec.formula == cx.formula]
         path_records = [_record(cx.formula, job, results_by_key.get(job.key), None, warnings)
-                        for job in path_jobs if job.spec["formula"] == cx.formula]
+                        for job in path_jobs if job.spec.formula == cx.formula]
         done = [r for r in records if r.status == "done" and r.energy_hartree is not None]
         lowest = min(r.energy_hartree for r in done) if done else None
         for r in done:
@@ -177,11 +171,11 @@ _RESULT_FIELDS = ("energy_hartree", "converged", "reason", "tau4", "tau4_prime",
 def _record(formula: str, job, result: dict | None, est, warnings: list) -> StateRecord:
     """One job's row; ``est`` (the complex's Estimate) fills estimate_kj_mol, None for path points."""
     s = job.spec
-    record = StateRecord(formula, s["arrangement"], s["isomer"], s["spin2s"], s["kind"],
-                         status="pending" if result is None else result["status"], engine=s["engine"]["method"],
-                         job_key=job.key, trans_angle_deg=s.get("trans_angle_deg"))
+    record = StateRecord(formula, s.arrangement, s.isomer, s.spin2s, s.kind,
+                         status="pending" if result is None else result["status"], engine=s.method,
+                         job_key=job.key, trans_angle_deg=s.trans_angle_deg)
     if est is not None:
-        record.estimate_kj_mol = est.state(s["arrangement"], s["spin2s"], s["isomer"]).energy_kj_mol
+        record.estimate_kj_mol = est.state(s.arrangement, s.spin2s, s.isomer).energy_kj_mol
     if result is not None:
         for name in _RESULT_FIELDS:
             if result.get(name) is not None:
@@ -203,14 +197,6 @@ def _relative_path_energies(path_records: list[StateRecord], lowest_hartree: flo
         r.relative_kj_mol = convert_energy(r.energy_hartree - zero, "hartree", "kj")
 
 
-def comparison_for_folder(out_dir, study) -> Comparison:
-    from pathlib import Path
-
-    from ..study.store import ResultStore
-
-    store = ResultStore(Path(out_dir) / "results.db")
+def comparison_from_store(study, store) -> Comparison:
+    """The comparison of a study from a ResultStore (fourfold.study.store) holding its results."""
     return build_comparison(study, {r["job_key"]: r for r in store.results()})
-
-
-def state_words(record: StateRecord) -> str:
-    return f"{record.name}, {spin_label(record.spin2s)}"

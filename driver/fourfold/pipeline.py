@@ -1,0 +1,113 @@
+"""The whole job in one call: a study in; its jobs run, its verdict built and its report written.
+
+This is what `fourfold run` and `fourfold demo` do, and what a notebook or a benchmark calls:
+
+    from fourfold.pipeline import RunOptions, run_pipeline, scan
+    from fourfold.study.recipe import load_recipe
+
+    outcome = run_pipeline(load_recipe("recipes/demo.toml"), RunOptions(out_dir="outputs/demo"))
+    print(outcome.comparison.complexes[0].computed_ground)
+    nickel = scan("[NiCl4]2-", level="screen")          # one complex, every state; a ComplexComparison
+
+The store is the folder's results.db unless a PostgreSQL URL is given; `fourfold status` and
+`fourfold report` open the same store the same way (``open_store``). One process at a time writes a
+folder: the run lock is held over running and reporting.
+"""
+
+from __future__ import annotations
+
+import tempfile
+from collections.abc import Callable
+from dataclasses import dataclass
+from pathlib import Path
+
+from .errors import InputError
+from .report.render import Report, write_report
+from .report.tables import FORMATS
+from .study.recipe import load_folder_study, parse_recipe, scan_recipe_text
+from .study.runner import RunLock, RunSummary, run_study
+from .study.status import study_status
+from .study.store import ResultStore
+from .verdict.comparison import Comparison, ComplexComparison
+
+_POSTGRES_PREFIXES = ("postgresql://", "postgres://")
+
+
+@dataclass(frozen=True)
+class RunOptions:
+    """How a study is run and reported. ``progress(summary, running_labels)`` is called as jobs finish;
+    ``pool_factory(out_dir, timeout_s)`` makes another executor (fourfold.study.cluster)."""
+
+    out_dir: Path | str
+    workers: int = 2
+    threads: int = 1
+    retry_failed: bool = False
+    timeout_s: float | None = None
+    store_url: str | None = None
+    unit: str = "kj"
+    formats: tuple[str, ...] = FORMATS
+    pool_factory: Callable | None = None
+    progress: Callable | None = None
+
+
+@dataclass
+class Outcome:
+    summary: RunSummary
+    report: Report
+
+    @property
+    def comparison(self) -> Comparison:
+        return self.report.comparison
+
+
+def check_store_url(store_url: str | None) -> None:
+    if store_url and not store_url.startswith(_POSTGRES_PREFIXES):
+        raise InputError("--store takes a postgresql://USER@HOST:PORT/DB address; leave it out to keep results.db "
+                         "in the study folder")
+
+
+def open_store(folder, store_url: str | None = None, must_exist: bool = True) -> ResultStore:
+    """The store of a study folder: ``store_url`` (PostgreSQL) when given, else the folder's results.db."""
+    check_store_url(store_url)
+    if store_url:
+        return ResultStore(store_url)
+    path = Path(folder) / "results.db"
+    if must_exist and not path.exists():
+        raise InputError(f"{folder} has no results.db: run `fourfold run RECIPE --out {folder}` first, or give "
+                         "--store if its results are in PostgreSQL")
+    return ResultStore(path)
+
+
+def run_pipeline(study, options: RunOptions) -> Outcome:
+    """Run every job of ``study`` not yet done, then write the report from the same store."""
+    check_store_url(options.store_url)
+    out_dir = Path(options.out_dir)
+    with RunLock(out_dir):
+        summary = run_study(study, out_dir, workers=options.workers, threads=options.threads,
+                            retry_failed=options.retry_failed, timeout_s=options.timeout_s, progress=options.progress,
+                            store_url=options.store_url, pool_factory=options.pool_factory)
+        report = write_report(out_dir, study, open_store(out_dir, options.store_url), options.unit, options.formats)
+    return Outcome(summary, report)
+
+
+def report_folder(folder, store_url: str | None = None, unit: str = "kj", formats=FORMATS) -> Report:
+    """Write the report of a study folder again (another unit, another store) without running anything."""
+    study = load_folder_study(folder)
+    store = open_store(folder, store_url)
+    with RunLock(Path(folder)):
+        return write_report(folder, study, store, unit, formats)
+
+
+def folder_status(folder, store_url: str | None = None) -> dict:
+    """Done / failed / pending counts of a study folder's jobs, from its store."""
+    return study_status(load_folder_study(folder), open_store(folder, store_url), folder)
+
+
+def scan(formula: str, level: str = "screen", out_dir=None, relaxations=("held", "free"),
+         arrangements=("T-4", "SP-4"), spins=None, workers: int = 2, threads: int = 1) -> ComplexComparison:
+    """Every arrangement × isomer × 2S of one complex at one level, run and reported like `fourfold run
+    --formula`; returns its ComplexComparison (``.records``: one StateRecord per state and kind)."""
+    study = parse_recipe(scan_recipe_text(formula, level, relaxations, arrangements, spins), "scan")
+    out_dir = Path(out_dir) if out_dir else Path(tempfile.mkdtemp(prefix="fourfold-scan-"))
+    outcome = run_pipeline(study, RunOptions(out_dir, workers=workers, threads=threads))
+    return outcome.comparison.complexes[0]
