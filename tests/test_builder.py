@@ -18,7 +18,7 @@ FORMULAS = ["[NiCl4]2-", "[Ni(CN)4]2-", "[PdCl4]2-", "[Cu(NH3)4]2+", "[NiCl2(PMe
 def test_no_clashes_and_ideal_shapes(formula):
     # no two non-bonded atoms closer than 0.8 × the sum of covalent radii (Pyykkö & Atsumi 2009 radii,
     # from memory); the donor set is the ideal polyhedron: nearest shape S < 0.5 and tau4 of the ideal
-    # shape (Yang, Powell, Houser 2007; REFERENCES.md §1a)
+    # shape (Yang, Powell, Houser, Dalton Trans. 2007)
     tau4_ideal = {"T-4": 1.0, "SP-4": 0.0, "SS-4": 0.638, "vTBPY-4": 0.851}
     cx = complex_from_formula(formula)
     for atoms in build_all(cx):
@@ -67,7 +67,7 @@ def test_cis_trans_isomers_of_ma2b2():
 
 
 def test_path_point_trans_angle():
-    # D2d path point: the two trans angles equal the requested angle (REFERENCES.md §1b [C])
+    # D2d path point: the two trans angles equal the requested angle (docs/sources.md#casanova2004-paths [C])
     atoms = build_path_point(complex_from_formula("[NiCl4]2-"), 140.0)
     angles = ligand_angles_deg(atoms.positions[0], atoms.positions[1:5])
     assert sorted(angles)[-2:] == pytest.approx([140.0, 140.0])

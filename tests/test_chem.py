@@ -8,7 +8,7 @@ from fourfold.chem.metals import all_metals, get_metal
 from fourfold.errors import InputError
 
 # d counts and oxidation states: d^n = group − oxidation state [common practice, no source];
-# spin states of each as in REFERENCES.md §5 (Greenwood & Earnshaw 1997, from memory).
+# spin states of each as in docs/sources.md#four-coordinate-rules (Greenwood & Earnshaw 1997, from memory).
 CASES = [
     ("[NiCl4]2-", "Ni", 2, 8, (0, 2)),
     ("[Ni(CN)4]2-", "Ni", 2, 8, (0, 2)),
@@ -91,7 +91,7 @@ def test_metal_coverage_and_radii_sources():
 
 
 def test_free_ion_racah_b_from_jolly():
-    # W. L. Jolly, Modern Inorganic Chemistry, 1989, p. 411 (REFERENCES.md §4 [V])
+    # W. L. Jolly, Modern Inorganic Chemistry, 1989, p. 411 [V]
     expected = {"Ti": 695, "V": 755, "Cr": 810, "Mn": 860, "Fe": 917, "Co": 971, "Ni": 1030}
     for symbol, b in expected.items():
         value = get_metal(symbol).racah_b(2)
@@ -99,7 +99,7 @@ def test_free_ion_racah_b_from_jolly():
 
 
 def test_jorgensen_g_and_f():
-    # Jørgensen, Modern Aspects of Ligand Field Theory, 1971, pp. 347–348 (REFERENCES.md §4 [V])
+    # Jørgensen, Modern Aspects of Ligand Field Theory, 1971, pp. 347–348 [V]
     assert get_metal("Ni").g(2).value == 8.7
     assert get_metal("Co").g(3).value == 18.2
     ligands = bundled_ligands()

@@ -22,7 +22,7 @@ def test_help_does_not_import_heavy_modules():
 
 
 def test_estimate_json_fields_and_textbook_ground_states():
-    # REFERENCES.md §5: [NiCl4]2- Td triplet; [Ni(CN)4]2- and [PdCl4]2- planar singlets (facts of the trade)
+    # [NiCl4]2- Td triplet; [Ni(CN)4]2- and [PdCl4]2- planar singlets (docs/sources.md#four-coordinate-rules)
     for formula, ground in (("[NiCl4]2-", ("T-4", 2)), ("[Ni(CN)4]2-", ("SP-4", 0)), ("[PdCl4]2-", ("SP-4", 0))):
         data = json.loads(run("estimate", formula, "--json", check=True).stdout)
         assert {"formula", "d_electrons", "states", "ground"} <= set(data)

@@ -42,7 +42,7 @@ arrangements = ["SP-4"]
 formula = "[PdCl4]2-"
 """
 WORKER_FAULTS = "hang:[PdCl4]2- SP-4 2S=0,kill-worker:[PdCl4]2- SP-4 2S=2"
-ENERGY_TOLERANCE_HARTREE = 1e-8  # the issue's bar: same energies within 1e-8 Eh
+ENERGY_TOLERANCE_HARTREE = 1e-8  # fourfold's bar: same energies within 1e-8 Eh
 
 
 def fourfold(*args, **kwargs):

@@ -1,5 +1,5 @@
 """Computed ligand field: d levels projected from converged Kohn–Sham operators, checked against the
-textbook splitting patterns (REFERENCES.md §2–3)."""
+textbook splitting patterns (AOM: Schäffer & Jørgensen 1965; point charges: Day & Selbin 1962)."""
 
 import numpy as np
 import pytest
@@ -29,7 +29,7 @@ def square(metal, ligand, distance_angstrom) -> Atoms:
 
 @pytest.fixture(scope="module")
 def nicl4_tetrahedral_triplet():
-    # Ni–Cl 2.27 Å: Stucky, Folkers, Kistenmacher, Acta Cryst. 1967, 23, 1064 (from memory; REFERENCES.md §5)
+    # Ni–Cl 2.27 Å: Stucky, Folkers, Kistenmacher, Acta Cryst. 1967, 23, 1064 (from memory)
     result = engine.run_scf(tetrahedral("Ni", "Cl", 2.27), -2, 2, PBE_SVP)
     assert result.converged
     return result
@@ -37,7 +37,7 @@ def nicl4_tetrahedral_triplet():
 
 @pytest.fixture(scope="module")
 def pdcl4_square_singlet():
-    # Pd–Cl ≈ 2.31 Å in K2PdCl4: Mais, Owston, Wood, Acta Cryst. 1972, B28, 393 (from memory; REFERENCES.md §5)
+    # Pd–Cl ≈ 2.31 Å in K2PdCl4: Mais, Owston, Wood, Acta Cryst. 1972, B28, 393 (from memory)
     # closed shell by construction (the singlet stability search is tested in test_pyscf_engine)
     result = engine.run_scf(square("Pd", "Cl", 2.31), -2, 0, PBE_SVP, form="restricted")
     assert result.converged
@@ -45,14 +45,14 @@ def pdcl4_square_singlet():
 
 
 def test_tetrahedral_nickel_splits_two_below_three(nicl4_tetrahedral_triplet):
-    # Td: e (z², x²−y²) below t2 (xy, xz, yz) — point-charge and AOM tables, REFERENCES.md §2–3
+    # Td: e (z², x²−y²) below t2 (xy, xz, yz) — point-charge and AOM tables
     # (Day & Selbin 1962; Schäffer & Jørgensen 1965).
     levels = dblock.d_levels_from_result(nicl4_tetrahedral_triplet, metal_index=0)
     gaps = np.diff(levels.relative_cm)
     assert np.argmax(gaps) == 1                                  # the big gap sits between levels 2 and 3
     assert levels.characters[E_SET][:, :2].sum() > 1.8           # the lower pair is the e set
     assert set(levels.labels[:2]) == {"z2", "x2-y2"}
-    # Δt of [NiCl4]2- from spectra is 3500–4100 cm⁻¹ (Lever 1984, from memory; REFERENCES.md §4): the
+    # Δt of [NiCl4]2- from spectra is 3500–4100 cm⁻¹ (Lever 1984, from memory): the
     # computed e–t2 separation must be of that size (a factor of two either way).
     delta_t_cm = levels.relative_cm[2:].mean() - levels.relative_cm[:2].mean()
     assert 0.5 * 3500 < delta_t_cm < 2 * 4100
@@ -62,7 +62,7 @@ def test_tetrahedral_nickel_splits_two_below_three(nicl4_tetrahedral_triplet):
 
 def test_square_planar_palladium_has_x2_y2_on_top_with_the_largest_gap(pdcl4_square_singlet):
     # SP-4 with ligands on ±x, ±y: d(x²−y²) is the σ-antibonding level, far above the other four
-    # (point-charge +12.28 Dq against ≤ +2.28 Dq: Day & Selbin 1962, REFERENCES.md §3; AOM 3eσ, §2).
+    # (point-charge +12.28 Dq against ≤ +2.28 Dq: Day & Selbin 1962; AOM 3eσ, Schäffer & Jørgensen 1965).
     levels = dblock.d_levels_from_result(pdcl4_square_singlet, metal_index=0)
     gaps = np.diff(levels.relative_cm)
     assert levels.labels[-1] == "x2-y2"

@@ -18,7 +18,7 @@ def _diag(directions, e_sigma, e_pi, e_ds=0.0):
 
 
 def test_aom_coefficients_oh_td_sp():
-    # Schäffer & Jørgensen 1965 / Larsen & La Mar, J. Chem. Educ. 1974, 51, 633; REFERENCES.md §2 table [C]
+    # Schäffer & Jørgensen 1965 / Larsen & La Mar, J. Chem. Educ. 1974, 51, 633; table computed from the model [C]
     es, ep = 1000.0, 170.0
     oh = _diag(OCTAHEDRON, es, ep)
     assert oh["z2"] == pytest.approx(3 * es) and oh["x2-y2"] == pytest.approx(3 * es)
@@ -33,7 +33,7 @@ def test_aom_coefficients_oh_td_sp():
 
 
 def test_delta_t_is_four_ninths_delta_o():
-    # Δt = (4/9)Δo for the same ligand and distance (REFERENCES.md §2, derived [C]; textbook fact)
+    # Δt = (4/9)Δo for the same ligand and distance (derived from the AOM [C]; textbook fact)
     es, ep = 3000.0, 600.0
     oh, _ = d_levels(aom_matrix(OCTAHEDRON, es, ep))
     td, _ = d_levels(aom_matrix(unit_vectors("T-4"), es, ep))
@@ -58,13 +58,13 @@ def test_trace_sum_rule_and_rotation_invariance():
 
 
 def test_ds_mixing_vanishes_in_oh_and_td():
-    # Σ_L F_σ(z²) = 0 in Oh and Td, so d–s mixing only acts in lower symmetry (REFERENCES.md §2 [C])
+    # Σ_L F_σ(z²) = 0 in Oh and Td, so d–s mixing only acts in lower symmetry (docs/sources.md#smith1977-ds-mixing [C])
     for directions in (OCTAHEDRON, unit_vectors("T-4")):
         np.testing.assert_allclose(aom_matrix(directions, 1.0, 0.2, e_ds=0.25), aom_matrix(directions, 1.0, 0.2), atol=1e-12)
 
 
 @pytest.mark.parametrize("d,oh_hs,td_hs", [
-    # CFSE in Δo (Oh, high spin) and in Δt (Td, high spin): REFERENCES.md §3 table (Huheey; Miessler & Tarr) [P]
+    # CFSE in Δo (Oh, high spin) and in Δt (Td, high spin): docs/sources.md#textbook-cfse (Huheey; Miessler & Tarr) [P]
     (1, -0.4, -0.6), (2, -0.8, -1.2), (3, -1.2, -0.8), (4, -0.6, -0.4), (5, 0.0, 0.0),
     (6, -0.4, -0.6), (7, -0.8, -1.2), (8, -1.2, -0.8), (9, -0.6, -0.4), (10, 0.0, 0.0)])
 def test_cfse_table_from_aom_levels(d, oh_hs, td_hs):
@@ -77,7 +77,7 @@ def test_cfse_table_from_aom_levels(d, oh_hs, td_hs):
 
 
 def test_cfse_low_spin_oh_d6():
-    # Oh low-spin d6: −2.4 Δo (REFERENCES.md §3 [P])
+    # Oh low-spin d6: −2.4 Δo (docs/sources.md#textbook-cfse [P])
     levels, _ = d_levels(aom_matrix(OCTAHEDRON, 3000.0, 500.0))
     assert occupations(6, 0) @ (levels - levels.mean()) / (levels[-1] - levels[0]) == pytest.approx(-2.4)
 
@@ -103,7 +103,7 @@ def test_kepert_repulsion_prefers_tetrahedron():
 
 
 @pytest.mark.parametrize("formula,arrangement,spin2s", [
-    # Facts of the trade, REFERENCES.md §5 (Greenwood & Earnshaw 1997 ch. 27, from memory):
+    # Facts of the trade, docs/sources.md#four-coordinate-rules (Greenwood & Earnshaw 1997 ch. 27, from memory):
     ("[NiCl4]2-", "T-4", 2),   # Stucky, Folkers, Kistenmacher, Acta Cryst. 1967, 23, 1064 (from memory): Td, S = 1
     ("[Ni(CN)4]2-", "SP-4", 0),  # Musselman, Stecher, Watkins, Inorg. Chem. 1980, 19, 3400: D4h, S = 0
     ("[PdCl4]2-", "SP-4", 0),  # Mais, Owston, Wood, Acta Cryst. 1972, B28, 393 (from memory): D4h, S = 0
@@ -121,7 +121,7 @@ def test_default_estimate_predicts_the_textbook_ground_state(formula, arrangemen
 
 def test_ni_phosphine_halide_is_close_to_the_planar_tetrahedral_boundary():
     # NiX2(PR3)2: planar ⇌ tetrahedral equilibria with |ΔH| of a few kcal/mol (Que & Pignolet, Inorg. Chem.
-    # 1973, 12, 156, REFERENCES.md §5): the estimate should not be decisive (within 30 kJ/mol)
+    # 1973, 12, 156): the estimate should not be decisive (within 30 kJ/mol)
     result = estimate(complex_from_formula("[NiCl2(PMe3)2]"))
     gap = abs(result.state("SP-4", 0).energy_kj_mol - result.state("T-4", 2).energy_kj_mol)
     assert gap < 30.0

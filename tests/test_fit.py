@@ -1,4 +1,4 @@
-"""The AOM fit recovers known parameters from matrices built with the published AOM (REFERENCES.md §2)."""
+"""The AOM fit recovers known parameters from matrices built with the published AOM (Schäffer & Jørgensen 1965)."""
 
 import numpy as np
 import pytest
@@ -9,7 +9,7 @@ from fourfold.geometry.polyhedra import unit_vectors
 
 
 def test_fit_recovers_sp4_parameters_including_ds_mixing():
-    # SP-4 levels are x²−y² 3e_σ, xy 4e_π, xz/yz 2e_π, z² e_σ − 4e_ds (Schäffer & Jørgensen 1965; REFERENCES.md §2 [C]):
+    # SP-4 levels are x²−y² 3e_σ, xy 4e_π, xz/yz 2e_π, z² e_σ − 4e_ds (Schäffer & Jørgensen 1965 [C]):
     # four distinct levels determine e_σ, e_π, e_ds and the zero
     directions = unit_vectors("SP-4") * 2.3
     matrix = aom_matrix(directions, 5500.0, 900.0, e_ds=1200.0) - 30000.0 * np.eye(5)
@@ -22,7 +22,7 @@ def test_fit_recovers_sp4_parameters_including_ds_mixing():
 
 
 def test_fit_in_t4_ties_pi_to_sigma():
-    # Td shows only Δt = (4/9)(3e_σ − 4e_π) (REFERENCES.md §2): e_π must be tied to e_σ
+    # Td shows only Δt = (4/9)(3e_σ − 4e_π) (Schäffer & Jørgensen 1965): e_π must be tied to e_σ
     directions = unit_vectors("T-4")
     matrix = aom_matrix(directions, 4000.0, 720.0) + 1234.0 * np.eye(5)
     fit = fit_aom(matrix, directions, ["Cl"] * 4, pi_ratios={"Cl": 0.18})

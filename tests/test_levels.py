@@ -18,7 +18,7 @@ from fourfold.errors import InputError
 
 
 def test_the_three_presets_exist_with_the_documented_roles():
-    # The tiers named in DESIGN.md / the compute issue: screen (xTB), quick (xTB geometries + hybrid DFT
+    # The tiers fourfold documents in compute/levels.py: screen (xTB), quick (xTB geometries + hybrid DFT
     # single points), standard (DFT relaxations in solvent + larger-basis single points).
     assert set(PRESETS) == {"screen", "quick", "standard"}
     assert get_level("screen").method == "xtb"

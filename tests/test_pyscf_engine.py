@@ -91,7 +91,7 @@ def test_stretched_h2_singlet_is_reported_as_broken_symmetry():
     # Near equilibrium (0.74 Å) the closed shell is stable: no broken symmetry is invented.
     bonded = engine.run_scf(h2(0.74), 0, 0, HF_STO3G)
     assert bonded.restricted and not bonded.broken_symmetry and bonded.s2 == 0.0
-    # H2 RHF/STO-3G at 1.4 bohr: -1.1167 Eh (Szabo & Ostlund, from memory; REFERENCES.md §6b)
+    # H2 RHF/STO-3G at 1.4 bohr: -1.1167 Eh (Szabo & Ostlund 1996, from memory)
     assert engine.run_scf(h2(1.4 * BOHR_ANGSTROM), 0, 0, HF_STO3G).energy_hartree == pytest.approx(-1.1167, abs=1e-4)
 
 

@@ -45,7 +45,7 @@ def test_held_relaxation_keeps_the_arrangement(directions, arrangement, spin2s):
     assert result.converged, result.message
     ideal = ligand_angles_deg(nicl4(directions).get_positions())
     final = result.atoms.get_positions()
-    # Issue 3: every L–M–L angle within 0.5° of the ideal arrangement (trans angles included).
+    # Held relaxations keep every L–M–L angle within 0.5° of the ideal arrangement (trans angles included).
     assert np.abs(ligand_angles_deg(final) - ideal).max() < 0.5
     # Bond lengths relax: the 2.09–2.42 Å start bonds are not all at the xTB minimum (common practice, no source).
     start_bonds = np.linalg.norm(start.get_positions()[1:5] - start.get_positions()[0], axis=1)
@@ -60,7 +60,7 @@ def test_held_relaxation_keeps_the_arrangement(directions, arrangement, spin2s):
 
 @pytest.mark.parametrize("trans_angle_deg", [160.0, 175.0])
 def test_held_path_point_keeps_its_angles(trans_angle_deg):
-    # A point on the D2d flattening path T-4 -> SP-4 (REFERENCES.md §1b; Casanova et al., J. Am. Chem.
+    # A point on the D2d flattening path T-4 -> SP-4 (Casanova et al., J. Am. Chem.
     # Soc. 2004, 126, 1755, from memory), held as the runner holds path points near the square.
     start = nicl4(d2d_path(trans_angle_deg))
     result = relax(start, screen_potential(0), "held", "SP-4")
@@ -81,8 +81,8 @@ def test_held_jahn_teller_state_distorts_from_an_ideal_start():
 
 
 def test_free_square_triplet_falls_towards_tetrahedron():
-    # Issue 3 check: free SP-4 [NiCl4]2- at 2S = 2 ends with tau4 > 0.6 (a planar d8 triplet is not a
-    # minimum; DESIGN.md "Chemistry decisions"). tau4: Yang, Powell, Houser, Dalton Trans. 2007, 955.
+    # Check: free SP-4 [NiCl4]2- at 2S = 2 ends with tau4 > 0.6 (a planar d8 triplet is not a
+    # minimum: why fourfold also relaxes free). tau4: Yang, Powell, Houser, Dalton Trans. 2007, 955.
     result = relax(nicl4(SQUARE), screen_potential(2), "free", "SP-4")
     assert result.converged, result.message
     positions = result.atoms.get_positions()

@@ -23,7 +23,7 @@ from fourfold.study.recipe import parse_recipe
 from fourfold.study.runner import run_study
 from fourfold.study.store import ResultStore
 
-# CODATA 2018 (Tiesinga et al., Rev. Mod. Phys. 93, 025010, 2021), REFERENCES.md §7: size of 1 Eh per unit
+# CODATA 2018 (Tiesinga et al., Rev. Mod. Phys. 93, 025010, 2021): size of 1 Eh per unit
 EH = {"kj": 2625.49963948, "kcal": 627.50947406, "ev": 27.211386245988, "cm": 219474.6313632}
 SUFFIX = {"kj": "kj_mol", "kcal": "kcal_mol", "ev": "ev", "cm": "cm-1"}
 TETRAHEDRAL_DEG = math.degrees(math.acos(-1.0 / 3.0))  # the ideal tetrahedral angle (common practice, no source)
@@ -182,7 +182,7 @@ def test_delta_and_summary_follow_from_the_stored_energies(studies):
         agree = (row["computed_ground_arrangement"], row["computed_ground_spin2s"]) == \
                 (row["estimated_ground_arrangement"], row["estimated_ground_spin2s"])
         assert row["agree"] == ("true" if agree else "false")
-    # [NiCl4]2- is tetrahedral with S = 1 (Stucky, Folkers, Kistenmacher, Acta Cryst. 1967; REFERENCES.md §5)
+    # [NiCl4]2- is tetrahedral with S = 1 (Stucky, Folkers, Kistenmacher, Acta Cryst. 1967, from memory)
     assert (summary["[NiCl4]2-"]["estimated_ground_arrangement"], summary["[NiCl4]2-"]["estimated_ground_spin2s"]) \
         == ("T-4", "2")
 
@@ -196,7 +196,7 @@ def test_markdown_json_and_latex_carry_the_xtb_caveat(studies):
     assert len(data["tables"]["states"]) == 10 and {"summary", "deltas", "ligand_field"} <= set(data["tables"])
     for name in ("summary", "deltas", "states_NiCl4_2-", "states_NiCl2PMe32"):
         tex = (tables / f"{name}.tex").read_text(encoding="utf-8")
-        # booktabs rules, no siunitx (issue 5); pdflatex needs plain ASCII input
+        # booktabs rules, no siunitx (a fourfold default); pdflatex needs plain ASCII input
         assert all(rule in tex for rule in (r"\toprule", r"\midrule", r"\bottomrule")) and "siunitx" not in tex
         assert tex.isascii() and XTB_SPIN_WARNING in tex
         # "\\" and \midrule take an optional [argument]: no row may open with "[" (L. Lamport, LaTeX: A Document

@@ -24,7 +24,7 @@ from fourfold.geometry.shape import (
 )
 
 ORIGIN = np.zeros(3)
-# θ = arccos(−1/3): REFERENCES.md §1a [V]
+# θ = arccos(−1/3): Yang, Powell, Houser, Dalton Trans. 2007 [V]
 THETA_DEG = 109.4712206
 PROPERTY = settings(max_examples=40, deadline=None)
 
@@ -33,7 +33,7 @@ def donors_with_two_largest(beta_deg, alpha_deg):
     """Donors whose two largest angles are β (ligands 0/2) and α (ligands 1/3), β ≥ α ≥ θ.
 
     Pair 0/2 in the xz plane about +z, pair 1/3 in the yz plane about −z; the four mixed angles are
-    arccos(−cos(β/2) cos(α/2)) ≤ θ, so β and α are the two largest. Derivation, REFERENCES.md §1a [C].
+    arccos(−cos(β/2) cos(α/2)) ≤ θ, so β and α are the two largest. Derivation [C].
     """
     a, b = math.radians(beta_deg / 2), math.radians(alpha_deg / 2)
     return np.array(
@@ -51,7 +51,7 @@ def centred(arrangement):
 
 
 def sf4_seesaw():
-    # equatorially vacant trigonal bipyramid: axial pair on ±z, two equatorial at 120°, REFERENCES.md §1a [C]
+    # equatorially vacant trigonal bipyramid: axial pair on ±z, two equatorial at 120° [C]
     return np.array([[0, 0, 1], [0, 0, -1], [1, 0, 0], [-0.5, math.sqrt(3) / 2, 0]])
 
 
@@ -63,7 +63,7 @@ def random_rotation(rng):
 
 
 def test_ligand_angles_in_pair_order():
-    # mixed angles arccos(−cos(β/2)cos(α/2)) of the construction above, REFERENCES.md §1a [C]
+    # mixed angles arccos(−cos(β/2)cos(α/2)) of the construction above [C]
     beta, alpha = 160.0, 130.0
     mixed = math.degrees(math.acos(-math.cos(math.radians(beta / 2)) * math.cos(math.radians(alpha / 2))))
     angles = ligand_angles_deg(ORIGIN, donors_with_two_largest(beta, alpha))
@@ -81,7 +81,7 @@ def test_ligand_angle_keeps_precision_near_linear():
 # ---------------------------------------------------------------- tau4, tau4'
 
 IDEAL_TAU = [
-    # (donors, tau4, tau4'): REFERENCES.md §1a table of ideal shapes [C] (computed from the published formulas)
+    # (donors, tau4, tau4'): ideal shapes [C] (computed from the published formulas, Yang 2007; Okuniewski 2015)
     ("T-4", 1.0000, 1.0000),
     ("SP-4", 0.0000, 0.0000),
     ("vTBPY-4", 0.8507, 0.8507),
@@ -91,7 +91,7 @@ IDEAL_TAU = [
 
 @pytest.mark.parametrize("arrangement, expected_tau4, expected_tau4_prime", IDEAL_TAU)
 def test_tau4_of_ideal_shapes(arrangement, expected_tau4, expected_tau4_prime):
-    # [C] computed from the published formulas, REFERENCES.md §1a (Yang, Powell, Houser, Dalton Trans. 2007;
+    # [C] computed from the published formulas (Yang, Powell, Houser, Dalton Trans. 2007;
     # Okuniewski et al., Polyhedron 2015)
     donors = unit_vectors(arrangement)
     assert tau4(ORIGIN, donors) == pytest.approx(expected_tau4, abs=5e-5)
@@ -99,7 +99,7 @@ def test_tau4_of_ideal_shapes(arrangement, expected_tau4, expected_tau4_prime):
 
 
 def test_tau4_of_sf4_like_seesaw():
-    # [C] REFERENCES.md §1a: equatorially vacant TBP (180°, 120°) gives τ4 0.4254, τ4′ 0.2395 —
+    # [C] from the formulas: equatorially vacant TBP (180°, 120°) gives τ4 0.4254, τ4′ 0.2395 —
     # a different seesaw from our SS-4 (0.6380), which pins down which seesaw SS-4 means
     assert tau4(ORIGIN, sf4_seesaw()) == pytest.approx(0.4254, abs=5e-5)
     assert tau4_prime(ORIGIN, sf4_seesaw()) == pytest.approx(0.2395, abs=5e-5)
@@ -120,11 +120,11 @@ def random_angle_pairs(count, seed):
 @pytest.mark.parametrize("beta, alpha", random_angle_pairs(12, seed=4))
 def test_tau4_linear_forms(beta, alpha):
     donors = 2.2 * donors_with_two_largest(beta, alpha)
-    # Yang, Powell, Houser, Dalton Trans. 2007: τ4 ≈ −0.00709α − 0.00709β + 2.55 (REFERENCES.md §1a [V])
+    # Yang, Powell, Houser, Dalton Trans. 2007: τ4 ≈ −0.00709α − 0.00709β + 2.55 [V]
     assert tau4(ORIGIN, donors) == pytest.approx(-0.00709 * alpha - 0.00709 * beta + 2.55, abs=0.01)
-    # Okuniewski et al., Polyhedron 2015: τ4′ ≈ −0.00399α − 0.01019β + 2.55 (REFERENCES.md §1a [V])
+    # Okuniewski et al., Polyhedron 2015: τ4′ ≈ −0.00399α − 0.01019β + 2.55 [V]
     assert tau4_prime(ORIGIN, donors) == pytest.approx(-0.00399 * alpha - 0.01019 * beta + 2.55, abs=0.01)
-    # exact coefficients, REFERENCES.md §1a [C]
+    # exact coefficients, computed from the formulas [C]
     exact_tau4 = 2.5521496561 - 0.0070893046 * (alpha + beta)
     exact_tau4_prime = 180 / (180 - THETA_DEG) - 0.0039915574 * alpha - 0.0101870518 * beta
     assert tau4(ORIGIN, donors) == pytest.approx(exact_tau4, abs=1e-8)
@@ -133,8 +133,8 @@ def test_tau4_linear_forms(beta, alpha):
 
 @pytest.mark.parametrize("trans_deg", [THETA_DEG, 115.0, 120.0, 135.0, 150.0, 165.0, 180.0])
 def test_tau4_along_d2d_path(trans_deg):
-    # REFERENCES.md §1a [C]: on the D2d path α = β = 2φ, so τ4 = τ4′ = (360 − 4φ)/(360 − 2θ)
-    # (the table prints the denominator as 140.53; 360 − 2θ = 141.058, which its 120° sample 0.851 needs)
+    # [C]: on the D2d path α = β = 2φ, so τ4 = τ4′ = (360 − 4φ)/(360 − 2θ)
+    # (140.53, as some tables print the denominator, is a slip: 360 − 2θ = 141.058, which τ4 0.851 at 120° needs)
     donors = d2d_path(trans_deg)
     expected = (360.0 - 2 * trans_deg) / (360.0 - 2 * THETA_DEG)
     assert tau4(ORIGIN, donors) == pytest.approx(expected, abs=1e-7)
@@ -144,7 +144,7 @@ def test_tau4_along_d2d_path(trans_deg):
 @PROPERTY
 @given(seed=st.integers(0, 2**32 - 1))
 def test_tau4_prime_never_exceeds_tau4(seed):
-    # τ4′ ≤ τ4 always, Okuniewski et al., Polyhedron 2015 (REFERENCES.md §1a [V])
+    # τ4′ ≤ τ4 always, Okuniewski et al., Polyhedron 2015 [V]
     rng = np.random.default_rng(seed)
     donors = rng.normal(size=(4, 3))
     assert tau4_prime(ORIGIN, donors) <= tau4(ORIGIN, donors) + 1e-12
@@ -153,12 +153,12 @@ def test_tau4_prime_never_exceeds_tau4(seed):
 # ---------------------------------------------------------------- CShM between ideal shapes
 
 CENTRED_MATRIX = {
-    # REFERENCES.md §1b, CShM between ideal shapes, metal included [C]
+    # CShM between ideal shapes, metal included, from the definition of Pinsky & Avnir 1998 [C]
     ("T-4", "SP-4"): 33.333, ("T-4", "SS-4"): 9.790, ("T-4", "vTBPY-4"): 3.573,
     ("SP-4", "SS-4"): 19.050, ("SP-4", "vTBPY-4"): 34.875, ("SS-4", "vTBPY-4"): 8.233,
 }
 LIGANDS_ONLY = {
-    # REFERENCES.md §1b, ligands only [C]
+    # the same, ligands only [C]
     ("T-4", "SP-4"): 33.333, ("T-4", "vTBPY-4"): 2.288, ("T-4", "SS-4"): 7.213,
     ("SP-4", "SS-4"): 16.737, ("SP-4", "vTBPY-4"): 34.007,
 }
@@ -166,7 +166,7 @@ LIGANDS_ONLY = {
 
 @pytest.mark.parametrize("structure, reference", list(itertools.product(ARRANGEMENTS, repeat=2)))
 def test_centred_cshm_matrix(structure, reference):
-    # [C] REFERENCES.md §1b table (rows Q, columns P, metal included); the table is symmetric, zero diagonal
+    # [C] CENTRED_MATRIX (rows Q, columns P, metal included); the table is symmetric, zero diagonal
     key = (structure, reference) if (structure, reference) in CENTRED_MATRIX else (reference, structure)
     expected = 0.0 if structure == reference else CENTRED_MATRIX[key]
     assert cshm(centred(structure), centred(reference)) == pytest.approx(expected, abs=5e-4)
@@ -175,14 +175,14 @@ def test_centred_cshm_matrix(structure, reference):
 
 @pytest.mark.parametrize("pair, expected", list(LIGANDS_ONLY.items()))
 def test_ligand_only_cshm(pair, expected):
-    # [C] REFERENCES.md §1b, ligands only, in both directions
+    # [C] LIGANDS_ONLY, in both directions
     a, b = pair
     assert cshm(unit_vectors(a), unit_vectors(b)) == pytest.approx(expected, abs=5e-4)
     assert cshm(unit_vectors(b), unit_vectors(a)) == pytest.approx(expected, abs=5e-4)
 
 
 def test_td_to_sp_published_value():
-    # Td↔SP ≈ 33.33, Keinan & Avnir, Inorg. Chem. 2001 / Alvarez group [M] (REFERENCES.md §1b)
+    # Td↔SP ≈ 33.33, Keinan & Avnir, Inorg. Chem. 2001 / Alvarez group [M]
     assert cshm(centred("T-4"), centred("SP-4")) == pytest.approx(33.33, abs=0.01)
 
 
@@ -191,7 +191,7 @@ def test_td_to_sp_published_value():
 
 @pytest.mark.parametrize("trans_deg", [112.0, 120.0, 130.0, 140.0, 150.0, 160.0, 175.0])
 def test_d2d_path_shape_measures(trans_deg):
-    # [C] REFERENCES.md §1b: S(SP-4) = 100 cos²φ and S(T-4) = 100 sin²(φ − 54.7356°), metal included
+    # [C] from the CShM definition: S(SP-4) = 100 cos²φ and S(T-4) = 100 sin²(φ − 54.7356°), metal included
     phi_deg = trans_deg / 2
     measures = shape_measures(ORIGIN, d2d_path(trans_deg))
     assert measures["SP-4"] == pytest.approx(100 * math.cos(math.radians(phi_deg)) ** 2, abs=1e-3)
@@ -206,7 +206,7 @@ def test_d2d_path_shape_measures(trans_deg):
 
 @pytest.mark.parametrize(
     "trans_deg, expected_tau4, expected_t, expected_sp",
-    # sample points, REFERENCES.md §1b [C]
+    # sample points [C]
     [(120.0, 0.851, 0.842, 25.000), (150.0, 0.425, 11.996, 6.699)],
 )
 def test_d2d_sample_points(trans_deg, expected_tau4, expected_t, expected_sp):
@@ -249,7 +249,7 @@ def test_indices_invariant_under_rigid_motion_scale_and_relabelling(seed, arrang
 @PROPERTY
 @given(seed=st.integers(0, 2**32 - 1), arrangement=st.sampled_from(ARRANGEMENTS))
 def test_mirror_image_has_same_measures_against_achiral_references(seed, arrangement):
-    # [C] the four ideal shapes have mirror planes (REFERENCES.md §1b point groups Td, D4h, C2v, C3v), so a
+    # [C] the four ideal shapes have mirror planes (point groups Td, D4h, C2v, C3v), so a
     # structure and its mirror image are equally far from each
     rng = np.random.default_rng(seed)
     donors = distorted(arrangement, rng)
@@ -262,7 +262,7 @@ def test_mirror_image_has_same_measures_against_achiral_references(seed, arrange
 @PROPERTY
 @given(seed=st.integers(0, 2**32 - 1), n=st.integers(2, 6))
 def test_cshm_of_random_shapes_lies_between_0_and_100(seed, n):
-    # S = 0 for identical shapes, 100 at most: Pinsky & Avnir 1998, REFERENCES.md §1b [M]
+    # S = 0 for identical shapes, 100 at most: Pinsky & Avnir 1998 [M]
     rng = np.random.default_rng(seed)
     points, reference = rng.normal(size=(n, 3)), rng.normal(size=(n, 3))
     assert 0.0 <= cshm(points, reference) <= 100.0
@@ -296,7 +296,7 @@ def brute_force_cshm(points, reference, rng, starts=2):
 
 
 def test_cshm_matches_brute_force_minimisation():
-    # [C] the definition of Pinsky & Avnir 1998 (REFERENCES.md §1b) minimised numerically, independent of
+    # [C] the definition of Pinsky & Avnir 1998 minimised numerically, independent of
     # the closed forms for rotation and scale
     rng = np.random.default_rng(11)
     points, reference = rng.normal(size=(4, 3)), rng.normal(size=(4, 3))
@@ -304,7 +304,7 @@ def test_cshm_matches_brute_force_minimisation():
 
 
 def test_chiral_shape_is_not_matched_by_its_mirror_image():
-    # proper rotations only (Pinsky & Avnir 1998 minimise over rotations, REFERENCES.md §1b [M]): an
+    # proper rotations only (Pinsky & Avnir 1998 minimise over rotations [M]): an
     # irregular tetrahedron with six different edges cannot be turned into its mirror image; the value
     # is checked against the numerical minimisation over rotation vectors [C]
     rng = np.random.default_rng(5)
@@ -320,7 +320,7 @@ def test_chiral_shape_is_not_matched_by_its_mirror_image():
 
 def test_geometry_indices_of_tetrahedral_nicl4():
     # [NiCl4]2-: Td, Ni–Cl ≈ 2.27 Å, Stucky, Folkers, Kistenmacher, Acta Cryst. 1967 [M];
-    # S values from the REFERENCES.md §1b matrix [C]; metal deliberately not atom 0
+    # S values from CENTRED_MATRIX [C]; metal deliberately not atom 0
     positions = np.vstack([2.27 * unit_vectors("T-4")[:2], ORIGIN, 2.27 * unit_vectors("T-4")[2:]])
     atoms = Atoms("Cl2NiCl2", positions=positions + [1.0, -2.0, 0.5])
     result = geometry_indices(atoms, [0, 1, 3, 4], metal_index=2)
@@ -345,7 +345,7 @@ def test_geometry_indices_of_planar_nickel_cyanide():
 
 
 def test_nearest_shape_of_flattened_tetrahedron():
-    # [C] REFERENCES.md §1b: at trans 120° S_T = 0.842, far below the other references
+    # [C] at trans 120° S_T = 0.842, far below the other references
     name, measure = nearest_shape(ORIGIN, 2.0 * d2d_path(120.0))
     assert name == "T-4"
     assert measure == pytest.approx(0.842, abs=5e-4)

@@ -58,7 +58,7 @@ def _table(folder):
 
 
 def test_keys_are_stable_and_change_with_settings():
-    # same inputs -> same key; a changed setting -> a new key (DESIGN.md "job key") [common practice, no source]
+    # same inputs -> same key; a changed setting -> a new key (fourfold's job key) [common practice, no source]
     first = {j.key for j in expand(parse_recipe(RECIPE))}
     again = {j.key for j in expand(parse_recipe(RECIPE))}
     changed = {j.key for j in expand(parse_recipe(RECIPE.replace("max_steps = 40", "max_steps = 41")))}

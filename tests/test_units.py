@@ -1,4 +1,4 @@
-"""Energy conversions against CODATA 2018 (REFERENCES.md §7 [V]; Tiesinga et al., Rev. Mod. Phys. 2021)."""
+"""Energy conversions against CODATA 2018 (Tiesinga et al., Rev. Mod. Phys. 2021 [V])."""
 
 import pytest
 
@@ -14,7 +14,7 @@ def test_hartree_conversions_codata_2018():
 
 
 def test_derived_conversions():
-    # 1 eV = 96.48533212 kJ/mol = 8065.543937 cm⁻¹; 1 cm⁻¹ = 0.01196265656 kJ/mol (REFERENCES.md §7)
+    # 1 eV = 96.48533212 kJ/mol = 8065.543937 cm⁻¹; 1 cm⁻¹ = 0.01196265656 kJ/mol (CODATA 2018)
     assert units.convert_energy(1.0, "ev", "kj") == pytest.approx(96.48533212, rel=1e-9)
     assert units.convert_energy(1.0, "ev", "cm") == pytest.approx(8065.543937, rel=1e-9)
     assert units.cm_to_kj_mol(1.0) == pytest.approx(0.01196265656, rel=1e-9)

@@ -103,7 +103,7 @@ def test_pickled_potential_gives_the_same_energy():
 
 
 def test_spin_warning_names_the_screen():
-    # Every output showing xTB energies must say its spin gaps are not trusted (DESIGN.md; issue 3).
+    # Every output showing xTB energies must say its spin gaps are not trusted (a fourfold default).
     assert "GFN2-xTB" in XTB_SPIN_WARNING and "spin" in XTB_SPIN_WARNING
 
 
@@ -116,7 +116,7 @@ def _free_energy_hartree(atoms, arrangement, spin2s):
 
 def test_nicl4_tetrahedral_triplet_below_square_singlet():
     # [NiCl4]2- is tetrahedral, S = 1 (Stucky, Folkers, Kistenmacher, Acta Cryst. 1967, 23, 1064,
-    # from memory; REFERENCES.md §5). Holds with spin polarisation on (the default); plain GFN2-xTB
+    # from memory). Holds with spin polarisation on (the default); plain GFN2-xTB
     # gets it the other way round (module docstring).
     triplet = _free_energy_hartree(nicl4_t4(), "T-4", 2)
     singlet = _free_energy_hartree(halide_complex("Ni", "Cl", SQUARE, 2.2), "SP-4", 0)

@@ -16,7 +16,7 @@ Pd–Cl 2.31 Å):
 - Not the bare 5×5 block of the operator in orthogonalised d functions: for [NiCl4]2- that block puts
   two t2 functions ~1000 cm⁻¹ *below* the e pair (diagonal elements of orthogonalised AOs miss the
   antibonding push that defines the ligand field); the orbital route gives e below t2 by ≈ 4000 cm⁻¹
-  (Δt from spectra: 3500–4100 cm⁻¹, REFERENCES.md §4).
+  (Δt from spectra: 3500–4100 cm⁻¹, Lever 1984, from memory).
 - Not PySCF's meta-Löwdin: with its default ANO pre-orthogonalisation the d functions of an ECP atom
   (Pd) are not rotation-covariant (the same molecule turned by 45° about z gives different d weights
   and picks a σ-bonding orbital), and without it the σ-bonding orbital of [PdCl4]2- has more d weight

@@ -20,7 +20,7 @@ TPSSh-D3(BJ) has a mean absolute error of 5–7 kcal/mol, like B3LYP*-D3(BJ) and
 B3LYP figure of ~10 kcal/mol on octahedral complexes (Hughes & Friesner, *J. Chem. Theory Comput.*
 2011, 7, 19). Only double hybrids and CCSD(T) do clearly better on SSE17, and they are out of reach
 for relaxations on a workstation. B3LYP (20 % exact exchange) in ``quick`` leans towards high spin
-(more exact exchange favours high spin, REFERENCES.md §6c): a known bias, stated in the report.
+(more exact exchange favours high spin, docs/sources.md#exact-exchange-spin): a known bias, stated in the report.
 
 PySCF's ``b3lyp`` is the VWN-RPA variant (PySCF ≥ 2.3, as in Gaussian); the D3(BJ) parameters of
 the ``dftd3`` package were fitted with the VWN5 variant. The difference is far below the method error.

@@ -3,7 +3,7 @@
 Inputs are an ``ase.Atoms`` (positions in Å), the total charge and 2S (PySCF's ``mol.spin``) and a
 ``Level``. Results are plain data (``ScfResult``) so a worker process can hand them to the driver.
 
-Decisions (DESIGN.md "Chemistry decisions"):
+Decisions (fourfold defaults, listed in docs/sources.md#fourfold-defaults):
 - Closed-shell singlets run restricted; open shells unrestricted. A singlet is then checked for an
   RKS → UKS instability (PySCF's external stability analysis); when a lower UKS solution exists it is
   converged and reported as a broken-symmetry singlet with its ⟨S²⟩, never as a closed shell.
@@ -33,7 +33,7 @@ from ..errors import ComputeError, InputError, NotConverged
 from .levels import Level, solvent_epsilon
 
 RUNGS = ("diis", "shift_damp", "newton", "smearing")
-S2_TOLERANCE = 0.1            # |<S²> − S(S+1)| above this flags spin contamination (DESIGN.md)
+S2_TOLERANCE = 0.1            # |<S²> − S(S+1)| above this flags spin contamination (fourfold default)
 BROKEN_SYMMETRY_S2 = 0.1      # a singlet UKS solution with <S²> above this is open-shell
 LOWER_ENERGY_HARTREE = 1e-6   # a UKS singlet must lie this far below the RKS one to be kept
 AUFBAU_TOLERANCE_HARTREE = 1e-5
@@ -516,7 +516,7 @@ def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: l
     A singlet (form None) runs RKS with DIIS only (at most half the cycle budget). If that converges,
     the RKS → UKS stability analysis decides whether a broken-symmetry UKS solution is sought; if it
     does not, the UKS search starts at once from a HOMO/LUMO-mixed guess. The stronger rungs are spent
-    on UKS, whose space contains the closed shell, not on RKS (DESIGN.md: tetrahedral singlets converged
+    on UKS, whose space contains the closed shell, not on RKS (measured, B3LYP/def2-SVP: tetrahedral singlets converged
     only as broken-symmetry UKS solutions, and one did not converge restricted even with newton).
     Returns (run, restricted, cycles spent on the discarded alternative).
     """
@@ -528,7 +528,7 @@ def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: l
     search = restricted and form is None
     rungs = RUNGS[:1] if search else RUNGS
     if search and cycle_cap_first_rung is None:
-        # Closed shells that converge do so in 10–24 DIIS cycles (DESIGN.md); spend no more on the probe.
+        # Closed shells that converge do so in 10–24 DIIS cycles (measured, B3LYP/def2-SVP); spend no more on the probe.
         cycle_cap_first_rung = max(1, level.max_cycles // 2)
     run = _finish_on_grid(_ladder(_mean_field(mol, level, restricted, scf_grid), dm0, cycle_cap_first_rung,
                                   rungs), level.grid_level)

@@ -2,7 +2,7 @@
 
 A potential is ``positions_angstrom (N, 3) -> (energy_hartree, gradient_hartree_per_bohr (N, 3))``.
 
-Two kinds (DESIGN.md, "Chemistry decisions"):
+Two kinds (a fourfold default):
 
 * ``held`` keeps the L–M–L arrangement of the given geometry: every L–M–L angle that is not near
   linear (above ``HOLDABLE_ANGLE_DEG``) is held at its value there, and for a square two dihedrals

@@ -11,7 +11,7 @@ from dataclasses import asdict, dataclass, field
 
 from ..units import convert_energy
 
-SPIN_CONTAMINATION_LIMIT = 0.1  # |⟨S²⟩ − S(S+1)| above this is flagged (DESIGN.md)
+SPIN_CONTAMINATION_LIMIT = 0.1  # |⟨S²⟩ − S(S+1)| above this is flagged (fourfold default)
 
 
 @dataclass
