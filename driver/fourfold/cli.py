@@ -40,7 +40,16 @@ def main():
 def _load_complex(formula: str):
     from .chem.complex import complex_from_formula
 
-    return complex_from_formula(formula)
+    cx = complex_from_formula(formula)
+    _print_cautions([cx])
+    return cx
+
+
+def _print_cautions(complexes) -> None:
+    """The safety cautions for the compounds in hand, once, on stderr (stdout stays data)."""
+    from .chem.hazards import cautions_text
+
+    click.echo(cautions_text(list(complexes)), err=True, nl=False)
 
 
 @main.command()
@@ -176,6 +185,7 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
         raise InputError("give either a RECIPE file or --formula FORMULA (with --level), not both or neither")
     check_store_url(store_url)
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
+    _print_cautions(e.complex for e in study.complexes)
     default_name = Path(recipe).stem if recipe else f"{formula_slug(study.complexes[0].complex.formula)}_{level}"
     pool = _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config)
     _run_and_print(study, out_dir or Path("outputs") / default_name,
@@ -218,8 +228,7 @@ def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_js
     if level:
         study = study.with_level(level)  # the folder's recipe.toml is written from the study: it says what ran
         out_dir = out_dir or Path("outputs") / f"demo-{study.level.name}"
-    click.echo("Demo: choosing a nickel(II) precursor. Nickel salts, cyanides and phosphines are hazardous; follow "
-               "local rules and the safety data sheets. A computed preference does not replace experiment.", err=True)
+    _print_cautions(e.complex for e in study.complexes)
     _run_and_print(study, out_dir or Path("outputs") / "demo",
                    dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s, quiet=quiet),
                    as_json)
@@ -243,7 +252,9 @@ def report(folder, unit, formats, store_url):
     Writes FOLDER/tables, FOLDER/figures (PDF, SVG, 300 dpi PNG) and FOLDER/structures."""
     from .pipeline import report_folder
     from .report.text import report_text
+    from .study.recipe import load_folder_study
 
+    _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"))
     click.echo(report_text(written), nl=False)
 

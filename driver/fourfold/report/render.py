@@ -44,14 +44,14 @@ def _write_text(path: Path, text: str) -> Path:
     return path
 
 
-def write_tables(comparison, folder: Path, unit: str, formats=tab.FORMATS) -> list[Path]:
+def write_tables(comparison, folder: Path, unit: str, formats=tab.FORMATS, safety_markdown: str = "") -> list[Path]:
     tables = tab.study_tables(comparison, unit)
     written = []
     if "csv" in formats:
         written += [_write_text(folder / f"{t.name}.csv", to_csv(t)) for t in tables if t.tidy]
     shown = [t for t in tables if t.display]
     if "md" in formats:
-        written.append(_write_text(folder / "report.md", tab.markdown_report(shown, comparison, unit)))
+        written.append(_write_text(folder / "report.md", tab.markdown_report(shown, comparison, unit, safety_markdown)))
     if "tex" in formats:
         written += [_write_text(folder / f"{t.name}.tex", to_latex(t)) for t in shown]
         written.append(_write_text(folder / "report.tex",
@@ -116,7 +116,10 @@ def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS) ->
     results = {r["job_key"]: r for r in store.results()}
     comparison = build_comparison(study, results)
     report = Report(folder, unit, comparison)
-    report.tables = write_tables(comparison, folder / "tables", unit, formats)
+    from ..chem.hazards import cautions_markdown
+
+    safety = cautions_markdown([e.complex for e in study.complexes], heading="## Safety")
+    report.tables = write_tables(comparison, folder / "tables", unit, formats, safety)
     report.figures = write_figures(comparison, folder / "figures", unit)
     report.structures = write_structures(comparison, results, folder / "structures", unit)
     return report

@@ -315,7 +315,7 @@ def study_tables(comparison, unit: str = "kj") -> list[Table]:
     return tables
 
 
-def markdown_report(tables: list[Table], comparison, unit: str) -> str:
+def markdown_report(tables: list[Table], comparison, unit: str, safety_markdown: str = "") -> str:
     """All tables in one Markdown file: the caveats once at the top, then each table with its own notes."""
     lines = [f"# {comparison.title}", "", f"Level: `{comparison.level}`. Energies in {energy_unit(unit).label} "
              "(CODATA 2018 conversions), relative to each complex's lowest computed state; estimates relative to "
@@ -324,6 +324,8 @@ def markdown_report(tables: list[Table], comparison, unit: str) -> str:
         lines += ["## Caveats", ""] + [f"- {w}" for w in comparison.warnings] + [""]
     for table in tables:
         lines.append(to_markdown(table, skip_notes=comparison.warnings))
+    if safety_markdown:
+        lines.append(safety_markdown)
     return "\n".join(lines)
 
 
