@@ -6,11 +6,7 @@ import sys
 
 import pytest
 
-FOURFOLD = [sys.executable, "-m", "fourfold.cli"]
-
-
-def run(*args, check=False):
-    return subprocess.run([*FOURFOLD, *args], capture_output=True, text=True, check=check)
+from conftest import run_fourfold as run
 
 
 def test_help_does_not_import_heavy_modules():

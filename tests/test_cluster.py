@@ -45,8 +45,7 @@ WORKER_FAULTS = "hang:[PdCl4]2- SP-4 2S=0,kill-worker:[PdCl4]2- SP-4 2S=2"
 ENERGY_TOLERANCE_HARTREE = 1e-8  # fourfold's bar: same energies within 1e-8 Eh
 
 
-def fourfold(*args, **kwargs):
-    return subprocess.run([sys.executable, "-m", "fourfold.cli", *args], capture_output=True, text=True, **kwargs)
+from conftest import run_fourfold as fourfold
 
 
 def start_fourfold(*args):

@@ -45,3 +45,54 @@ def test_every_solvent_reaches_xtb():
         engine = geometry_engine(dataclasses.replace(get_level("screen"), solvent=solvent))
         energy, _ = XtbPotential(atoms.get_chemical_symbols(), -2, 2, solvent=engine["solvent"])(atoms.get_positions())
         assert energy < 0
+
+
+# Job keys of two fixed recipes as fourfold 0.1.0 computed them from its untyped job dicts (the code versions
+# pinned, so only the job description enters): a JobSpec must give the same keys, or existing stores would
+# recompute everything.
+KEY_RECIPES = {
+    "quick": ('title = "key stability"\nlevel = "quick"\npath_points = 3\n[ligands.Lx]\n'
+              'xyz = "N 0 0 0\\nH 0 0.94 0.33\\nH 0.81 -0.47 0.33\\nH -0.81 -0.47 0.33"\ndonor_index = 0\ncharge = 0\n'
+              '[[complex]]\nformula = "[NiCl4]2-"\n[[complex]]\nmetal = "Ni"\noxidation_state = 2\n'
+              'ligands = ["Cl", "Cl", "Lx", "Lx"]\n'),
+    "standard": ('title = "key stability standard"\nlevel = "standard"\nrelaxations = ["held", "free"]\n'
+                 '[[complex]]\nformula = "[PdCl4]2-"\nspins = [0]\n'),
+}
+KEYS_BEFORE_JOBSPEC = {
+    "quick": (76, "9fa9398b95e2edff678e40cfa7b68364632921b7af4071bd447cc32a3b86b945"),
+    "standard": (10, "8232316012e43b453fd68c00304b19fab0103f8750979087bcc42c7a90c7dce0"),
+}
+
+
+@pytest.mark.parametrize("name", sorted(KEY_RECIPES))
+def test_job_keys_unchanged_by_jobspec(name, monkeypatch):
+    import hashlib
+
+    from fourfold.study import jobs
+
+    monkeypatch.setattr(jobs, "code_versions", lambda: {"fourfold": "0.1.0", "pyscf": "2.x", "tblite": "0.x",
+                                                         "geometric": "1.x"})
+    keys = sorted(j.key for j in jobs.expand(parse_recipe(KEY_RECIPES[name], name)))
+    assert (len(keys), hashlib.sha256("".join(keys).encode()).hexdigest()) == KEYS_BEFORE_JOBSPEC[name]
+
+
+@pytest.mark.parametrize("name", sorted(KEY_RECIPES))
+def test_jobspec_round_trips_through_its_dict(name):
+    from fourfold.study.jobs import JobSpec
+
+    for job in expand(parse_recipe(KEY_RECIPES[name], name)):
+        assert JobSpec.from_dict(job.spec.to_dict()) == job.spec
+
+
+@pytest.mark.parametrize("name", sorted(KEY_RECIPES))
+def test_recorded_recipe_gives_the_same_jobs_and_spells_out_the_level(name):
+    import tomllib
+
+    from fourfold.study.recipe import study_to_toml
+
+    study = parse_recipe(KEY_RECIPES[name], name)
+    text = study_to_toml(study)
+    assert isinstance(tomllib.loads(text)["level"], dict)  # the level in full, not a preset's name
+    again = parse_recipe(text, "recorded")
+    assert [j.key for j in expand(again)] == [j.key for j in expand(study)]
+    assert again.level == study.level

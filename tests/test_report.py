@@ -9,11 +9,8 @@ the CODATA 2018 factors written out below.
 import csv
 import json
 import math
-import os
 import shutil
 import subprocess
-import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -55,9 +52,7 @@ formula = "[NiCl4]2-"
 """
 
 
-def fourfold(*args):
-    return subprocess.run([sys.executable, "-m", "fourfold.cli", *args], capture_output=True, text=True,
-                          env={**os.environ, "OMP_NUM_THREADS": "1"})
+from conftest import run_fourfold as fourfold
 
 
 @pytest.fixture(scope="module")

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pytest
 
+from fourfold.errors import InputError
 from fourfold.study.jobs import expand
 from fourfold.study.recipe import load_recipe, parse_recipe
 from fourfold.study.store import ResultStore
@@ -32,9 +33,7 @@ formula = "[PdCl4]2-"
 """
 
 
-def fourfold(*args, env=None, **kwargs):
-    return subprocess.run([sys.executable, "-m", "fourfold.cli", *args], capture_output=True, text=True,
-                          env={**os.environ, **(env or {})}, **kwargs)
+from conftest import run_fourfold as fourfold
 
 
 @pytest.fixture()
@@ -155,13 +154,21 @@ BAD_RECIPES = [
 
 
 @pytest.mark.parametrize("text,fragment", BAD_RECIPES)
-def test_malformed_recipes_one_line_exit_2(tmp_path, text, fragment):
+def test_malformed_recipes_one_line_error(text, fragment):
+    with pytest.raises(InputError) as caught:
+        parse_recipe(text, "bad.toml")
+    message = str(caught.value)
+    assert "\n" not in message and fragment in message and message.startswith("bad.toml"), message
+
+
+def test_malformed_recipe_exit_status_2_and_nothing_written(tmp_path):
+    """The command-line contract for every InputError: one line on stderr, exit status 2, no folder made."""
     path = tmp_path / "bad.toml"
-    path.write_text(text)
+    path.write_text(BAD_RECIPES[0][0])
     result = fourfold("run", str(path), "--out", str(tmp_path / "out"))
     assert result.returncode == 2, result.stderr
     lines = result.stderr.strip().splitlines()
-    assert len(lines) == 1 and fragment in lines[0] and str(path) in lines[0], lines
+    assert len(lines) == 1 and BAD_RECIPES[0][1] in lines[0] and str(path) in lines[0], lines
     assert not (tmp_path / "out").exists()  # validated before anything ran or was written
 
 
@@ -185,3 +192,22 @@ def test_shipped_recipes_load_and_expand(path):
         assert final_spins == set(entry.complex.allowed_spin2s)
     if path.stem == "demo":
         assert study.complexes[0].complex.allowed_spin2s == (0, 2)  # d8: 2S = 0, 2 (common practice, no source)
+
+
+def test_a_run_leaves_the_callers_environment_and_thread_pools_alone(tmp_path):
+    """Threads are limited inside each job process (threadpoolctl), never through the caller's environment."""
+    from threadpoolctl import threadpool_info
+
+    from fourfold.study.runner import run_study
+
+    study = parse_recipe("level = 'screen'\nrelaxations = ['held']\n[[complex]]\nformula = '[ZnCl4]2-'\n", "zn")
+    environment, pools = dict(os.environ), {p["filepath"]: p["num_threads"] for p in threadpool_info()}
+    summary = run_study(study, tmp_path / "zn", workers=1, threads=1)
+    assert summary.done == summary.total == 2
+    assert dict(os.environ) == environment
+    after = {p["filepath"]: p["num_threads"] for p in threadpool_info()}
+    assert {path: after[path] for path in pools} == pools  # libraries loaded since may be new; none was changed
+    logs = sorted(p.name for p in (tmp_path / "zn" / "logs").iterdir())
+    assert logs[0].startswith("ZnCl4_2-_SP-4") and "2S0_held_relax-held_xtb" in logs[0], logs
+    header = (tmp_path / "zn" / "logs" / logs[0]).read_text().splitlines()[:4]
+    assert header[0].startswith("# fourfold job: [ZnCl4]2- SP-4") and header[3].startswith("# job key: ")
