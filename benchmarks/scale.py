@@ -1,7 +1,7 @@
 #!/usr/bin/env python
 """scale: study throughput (jobs per minute) on 1 vs 2 Dask workers, the same jobs, measured in one run.
 
-Run: ``benchmarks/scale [--complexes 2] [--rounds 1]`` (needs the cluster extra). Starts a `dask scheduler`
+Run: ``benchmarks/scale.py [--complexes 2] [--rounds 1]`` (needs the cluster extra). Starts a `dask scheduler`
 and `dask worker` processes (one process, one thread each) on 127.0.0.1, then runs the same screen-level
 study (GFN2-xTB held relaxations of four-coordinate chlorides: 4 independent jobs per complex, no job
 waits on another) through `--scheduler`'s pool, first on one worker, then on two (each run into a fresh
@@ -22,11 +22,9 @@ import tempfile
 import time
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
-
-from fourfold.study.cluster import pool_factory  # noqa: E402
-from fourfold.study.recipe import parse_recipe  # noqa: E402
-from fourfold.study.runner import run_study  # noqa: E402
+from fourfold.study.cluster import pool_factory
+from fourfold.study.recipe import parse_recipe
+from fourfold.pipeline import RunOptions, run_pipeline
 
 COMPLEXES = ("[NiCl4]2-", "[PdCl4]2-", "[PtCl4]2-", "[NiBr4]2-")
 
@@ -72,7 +70,8 @@ def wait_for_workers_gone(address: str) -> None:
 def timed_run(study, address: str, folder: Path) -> tuple[int, float, float]:
     """Jobs done, wall seconds, and the CPU seconds the driver (this process) spent on them."""
     started, cpu_started = time.perf_counter(), time.process_time()
-    summary = run_study(study, folder, threads=1, pool_factory=pool_factory(1, scheduler=address))
+    options = RunOptions(folder, threads=1, pool_factory=pool_factory(1, scheduler=address))
+    summary = run_pipeline(study, options).summary
     wall, driver_cpu = time.perf_counter() - started, time.process_time() - cpu_started
     if summary.failed:
         raise SystemExit(f"{summary.failed} jobs failed in {folder}: {summary.failures}")

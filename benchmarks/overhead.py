@@ -1,7 +1,7 @@
 #!/usr/bin/env python
 """overhead: one DFT single point through fourfold's engine vs a bare PySCF script, same settings.
 
-Run: ``benchmarks/overhead [--repeats 2] [--level quick]``. The case is SP-4 [NiCl4]2- (Ni–Cl 2.27 Å) as
+Run: ``benchmarks/overhead.py [--repeats 2] [--level quick]``. The case is SP-4 [NiCl4]2- (Ni–Cl 2.27 Å) as
 a triplet, so both sides do exactly one UKS SCF (a singlet would add fourfold's stability search,
 which the bare script does not do). Settings come from the level (functional, basis, density fitting,
 grid, convergence, D3(BJ)); both sides run on one thread (OMP and BLAS pinned before numpy loads) from
@@ -15,13 +15,9 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[_name] = "1"
 
 import argparse  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
-from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
-
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
 
 from ase import Atoms  # noqa: E402
 

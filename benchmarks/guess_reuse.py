@@ -1,7 +1,7 @@
 #!/usr/bin/env python
 """guess_reuse: SCF cycles over a spin scan of one arrangement, with density reuse vs cold starts.
 
-Run: ``benchmarks/guess_reuse [--formula "[CoCl4]2-"] [--arrangement T-4] [--level quick]``. The builder's
+Run: ``benchmarks/guess_reuse.py [--formula "[CoCl4]2-"] [--arrangement T-4] [--level quick]``. The builder's
 ideal structure is computed in every allowed 2S, highest first. Cold: each state from PySCF's minao
 guess. Reuse: each state seeded with the previous state's converged ScfResult (what the spin scan does
 at one geometry). SCF cycles are deterministic counts (all ladder rungs, and for a singlet the RKS run
@@ -14,11 +14,7 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[_name] = "1"
 
 import argparse  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
-from pathlib import Path  # noqa: E402
-
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
 
 from fourfold.chem.complex import complex_from_formula  # noqa: E402
 from fourfold.compute.levels import get_level  # noqa: E402

@@ -1,7 +1,7 @@
 #!/usr/bin/env python
 """workers: wall time of one study with different worker/thread settings, measured side by side.
 
-Run: ``benchmarks/workers [--recipe recipes/demo.toml] [--level screen]``. Each setting runs the same
+Run: ``benchmarks/workers.py [--recipe recipes/demo.toml] [--level screen]``. Each setting runs the same
 recipe into a fresh folder (nothing reused between settings); the settings alternate A B B A so drift in
 machine load cancels. Settings: 2 workers × 1 thread (one job per core) and 1 worker × 2 threads (one job
 using both cores). Prints each run, then the ratio of their summed wall times last.
@@ -10,17 +10,12 @@ The default overrides the recipe's level to `screen` so the benchmark takes minu
 """
 
 import argparse
-import dataclasses
-import sys
 import tempfile
 import time
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
-
-from fourfold.compute.levels import get_level  # noqa: E402
-from fourfold.study.recipe import load_recipe  # noqa: E402
-from fourfold.study.runner import run_study  # noqa: E402
+from fourfold.study.recipe import load_recipe
+from fourfold.pipeline import RunOptions, run_pipeline
 
 SETTINGS = {"2 workers x 1 thread": (2, 1), "1 worker x 2 threads": (1, 2)}
 
@@ -32,7 +27,7 @@ def main():
     parser.add_argument("--rounds", type=int, default=1, help="A B B A rounds")
     args = parser.parse_args()
     study = load_recipe(args.recipe)
-    study = dataclasses.replace(study, level=get_level(args.level))
+    study = study.with_level(args.level)
     totals = {name: 0.0 for name in SETTINGS}
     order = []
     for _ in range(args.rounds):
@@ -41,7 +36,7 @@ def main():
         workers, threads = SETTINGS[name]
         with tempfile.TemporaryDirectory(prefix="fourfold-bench-") as folder:
             started = time.perf_counter()
-            summary = run_study(study, folder, workers=workers, threads=threads)
+            summary = run_pipeline(study, RunOptions(folder, workers=workers, threads=threads)).summary
             wall = time.perf_counter() - started
         totals[name] += wall
         print(f"{name}: {summary.total} jobs ({summary.failed} failed) in {wall:.1f} s", flush=True)

@@ -1,7 +1,7 @@
 #!/usr/bin/env python
 """prerelax: DFT gradient evaluations of a relaxation from the GFN2-xTB pre-relaxed start vs the ideal one.
 
-Run: ``benchmarks/prerelax [--functional pbe] [--grid 1]``. For each case the same DFT relaxation
+Run: ``benchmarks/prerelax.py [--functional pbe] [--grid 1]``. For each case the same DFT relaxation
 (fourfold's ``relax`` with the PySCF potential, arrangement held) starts once from the builder's ideal
 structure and once from that structure relaxed at the screen tier (GFN2-xTB, spin polarisation on,
 also held). Gradient calls are deterministic counts. The DFT level is deliberately cheap (a GGA,
@@ -22,11 +22,7 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[_name] = "1"
 
 import argparse  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
-from pathlib import Path  # noqa: E402
-
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
 
 from fourfold.chem.complex import complex_from_formula  # noqa: E402
 from fourfold.compute.levels import custom_level  # noqa: E402
