@@ -40,13 +40,12 @@ def main():
 def _load_complex(formula: str):
     from .chem.complex import complex_from_formula
 
-    cx = complex_from_formula(formula)
-    _print_cautions([cx])
-    return cx
+    return complex_from_formula(formula)
 
 
 def _print_cautions(complexes) -> None:
-    """The safety cautions for the compounds in hand, once, on stderr (stdout stays data)."""
+    """The safety cautions for the compounds in hand, once, on stderr (stdout stays data), printed once the
+    input is known to be good so that a mistake still gets its one-line error."""
     from .chem.hazards import cautions_text
 
     click.echo(cautions_text(list(complexes)), err=True, nl=False)
@@ -69,6 +68,7 @@ def estimate(formula, arrangements, overrides, spins, as_json):
 
     cx = _load_complex(formula)
     result = run_estimate(cx, arrangements or DEFAULT_ARRANGEMENTS, parse_overrides(overrides), spins=spins or None)
+    _print_cautions([cx])
     if as_json:
         click.echo(json.dumps(result.as_dict(), indent=2, ensure_ascii=False))
     else:
@@ -90,6 +90,7 @@ def build(formula, arrangements, out_dir, as_json):
 
     cx = _load_complex(formula)
     rows = write_ideal_structures(build_all(cx, arrangements or ARRANGEMENT_CHOICES), out_dir)
+    _print_cautions([cx])
     if as_json:
         click.echo(json.dumps({"formula": cx.formula, "structures": rows}, indent=2, ensure_ascii=False))
     else:
@@ -185,9 +186,9 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
         raise InputError("give either a RECIPE file or --formula FORMULA (with --level), not both or neither")
     check_store_url(store_url)
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
-    _print_cautions(e.complex for e in study.complexes)
     default_name = Path(recipe).stem if recipe else f"{formula_slug(study.complexes[0].complex.formula)}_{level}"
     pool = _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config)
+    _print_cautions(e.complex for e in study.complexes)
     _run_and_print(study, out_dir or Path("outputs") / default_name,
                    dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s,
                         quiet=quiet, store_url=store_url, pool_factory=pool), as_json, single=bool(formula))

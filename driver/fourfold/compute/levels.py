@@ -241,3 +241,14 @@ def custom_level(mapping: Mapping[str, Any]) -> Level:
     if "name" not in settings and base is not None:
         start["name"] = f"{start['name']}-custom"
     return Level(**start)
+
+
+def exact_exchange_fraction(level: Level) -> float:
+    """The share of exact (Hartree–Fock) exchange of a level's method, from libxc through PySCF (1 for HF)."""
+    if level.method == "hf":
+        return 1.0
+    if level.method != "dft":
+        raise InputError(f"level '{level.name}' ({level.method}) has no exact-exchange share")
+    from pyscf.dft import libxc
+
+    return float(libxc.hybrid_coeff(level.functional))

@@ -105,6 +105,9 @@ def run_task(task: str, spec, parent: dict | None, context: JobContext = JobCont
     started = time.perf_counter()
     cx, atoms = start_structure(spec, parent)
     result = {"engine": spec.method, "warnings": []}
+    if parent is not None:  # a single point is only as good as the geometry it was computed on
+        result["geometry_converged"] = bool(parent.get("converged", True)) and parent.get("geometry_converged", True)
+        result["warnings"] += [w for w in parent.get("warnings", []) if w not in result["warnings"]]
     try:
         if task == "single-point":
             result.update(_single_point(spec, atoms, cx, context))
@@ -127,17 +130,51 @@ def run_task(task: str, spec, parent: dict | None, context: JobContext = JobCont
     return result
 
 
+# A relaxation that geomeTRIC gives up on (e.g. "Eigenvalues did not converge" building the coordinates of
+# held T-4 Ni(CO)4 at step 1) is started again this many times from a perturbed start before it is recorded
+# as failed: ligand atoms moved by up to RETRY_DISPLACEMENT_ANGSTROM, donors only along their M–L axes, so a
+# held arrangement stays what it was (fourfold default).
+RELAX_RETRIES = 2
+RETRY_DISPLACEMENT_ANGSTROM = 0.05
+
+
+def _perturbed(atoms, attempt: int, donor_indices=(1, 2, 3, 4), metal_index: int = 0):
+    rng = np.random.default_rng(1000 + attempt)
+    positions = atoms.get_positions()
+    moved = positions + rng.uniform(-RETRY_DISPLACEMENT_ANGSTROM, RETRY_DISPLACEMENT_ANGSTROM, positions.shape)
+    for donor in donor_indices:
+        axis = positions[donor] - positions[metal_index]
+        axis /= np.linalg.norm(axis)
+        moved[donor] = positions[donor] + axis * float(np.dot(moved[donor] - positions[donor], axis))
+    moved[metal_index] = positions[metal_index]
+    out = atoms.copy()
+    out.set_positions(moved)
+    return out
+
+
 def _relaxation(task: str, spec, atoms, cx, context: JobContext) -> dict:
     from .relax import relax
 
     kind = "held" if task == "path-point" else spec.kind
     potential = _potential(spec, atoms, context)
-    outcome = relax(atoms, potential, kind, _held_arrangement(spec), max_steps=spec.max_steps,
-                    log_path=context.log_path)
+    retried = []
+    for attempt in range(RELAX_RETRIES + 1):
+        start = atoms if attempt == 0 else _perturbed(atoms, attempt)
+        try:
+            outcome = relax(start, potential, kind, _held_arrangement(spec), max_steps=spec.max_steps,
+                            log_path=context.log_path)
+            break
+        except NotConverged:
+            raise
+        except ComputeError as error:
+            if attempt == RELAX_RETRIES or "geomeTRIC failed" not in str(error):
+                raise
+            retried.append(str(error))
     found = {"atoms": outcome.atoms, "energy_hartree": outcome.energy_hartree, "converged": outcome.converged,
-             "steps": outcome.steps, "gradient_calls": outcome.gradient_calls, "message": outcome.message}
+             "steps": outcome.steps, "gradient_calls": outcome.gradient_calls, "message": outcome.message,
+             "warnings": [f"restarted from a perturbed start after: {reason}" for reason in retried]}
     if not outcome.converged:
-        found["warnings"] = [f"relaxation {outcome.message}"]
+        found["warnings"].append(f"relaxation {outcome.message}")
     scf = getattr(potential, "last", None)
     if scf is not None:
         found.update(scf_summary(scf))
@@ -159,7 +196,23 @@ def _single_point(spec, atoms, cx, context: JobContext) -> dict:
     if context.chk_path:
         found["chkfile"] = str(context.chk_path)
     found.update(_d_block(scf, atoms, cx))
+    if scf.broken_symmetry:
+        found.update(_projected_singlet(scf, atoms, spec, context))
     return found
+
+
+def _projected_singlet(bs, atoms, spec, context: JobContext) -> dict:
+    """The triplet at the broken-symmetry singlet's geometry, and the singlet's Yamaguchi-projected energy."""
+    from .pyscf_engine import run_scf
+    from .spin_projection import projected_singlet_energy_hartree
+
+    hs = run_scf(atoms, spec.charge, 2, _level(spec.engine), guess=bs, log_path=context.log_path,
+                 threads=context.threads)
+    if not hs.converged:
+        return {"projection_note": f"no projection: the triplet at this geometry did not converge ({hs.reason})"}
+    return {"high_spin_energy_hartree": hs.energy_hartree, "high_spin_s2": hs.s2,
+            "projected_energy_hartree": projected_singlet_energy_hartree(bs.energy_hartree, bs.s2, hs.energy_hartree,
+                                                                         hs.s2)}
 
 
 def _save_orbitals(scf, chk_path) -> str:
@@ -186,9 +239,14 @@ def _d_block(scf, atoms, cx) -> dict:
             "fit_tied_pi": fit.tied_pi}
 
 
+def _homo_energy_hartree(scf) -> float | None:
+    occupied = np.asarray(scf.mo_energy_hartree)[np.asarray(scf.mo_occ) > 0]
+    return float(occupied.max()) if occupied.size else None
+
+
 def scf_summary(scf) -> dict:
     """The plain-data fields of an SCF result that reports need."""
-    return {"rung": scf.rung, "cycles": scf.cycles, "s2": scf.s2, "s2_expected": scf.s2_expected,
+    return {"homo_energy_hartree": _homo_energy_hartree(scf), "rung": scf.rung, "cycles": scf.cycles, "s2": scf.s2, "s2_expected": scf.s2_expected,
             "spin_contaminated": scf.spin_contaminated, "broken_symmetry": scf.broken_symmetry,
             "homo_lumo_gap_hartree": scf.homo_lumo_gap_hartree, "aufbau": scf.aufbau, "scf_notes": list(scf.notes),
             "dispersion_hartree": scf.dispersion_hartree}

@@ -23,6 +23,7 @@ from ..chem.complex import spin_label
 from ..chem.notation import formula_slug
 from ..geometry.polyhedra import arrangement_rank
 from ..units import energy_unit
+from ..verdict.comparison import START_SPREAD_LIMIT_KJ_MOL
 from .markup import multiplicity_word
 from .table import Column, Table, json_rows, to_markdown
 
@@ -43,15 +44,27 @@ def _sorted_records(records):
 
 
 def _note(record) -> str:
+    """Everything a reader must know about one state's numbers, in a few words."""
     if record.status != "done":
         return record.status if not record.reason else f"{record.status}: {record.reason}"
+    notes = []
     if record.broken_symmetry:
-        return "broken-symmetry singlet"
-    if record.spin_contaminated:
-        return "spin contaminated"
+        notes.append("broken-symmetry singlet" + (
+            f", projected (unprojected {record.unprojected_relative_kj_mol:+.1f} kJ/mol)".replace("-", "−")
+            if record.projected_energy_hartree is not None else ", unprojected"))
+    elif record.spin_contaminated:
+        notes.append("spin contaminated")
     if record.converged is False:
-        return "relaxation not converged"
-    return ""
+        notes.append("not converged")
+    if record.geometry_converged is False:
+        notes.append("relaxation not converged")
+    if record.kind == "free" and record.nearest_shape and record.nearest_shape != record.arrangement:
+        notes.append(f"ended {record.nearest_shape}")
+    if record.spread_kj_mol is not None and record.spread_kj_mol > START_SPREAD_LIMIT_KJ_MOL:
+        notes.append(f"starts spread {record.spread_kj_mol:.0f} kJ/mol")
+    if record.aufbau is False or record.occupation_matches is False:
+        notes.append("occupation off")
+    return "; ".join(notes)
 
 
 def _state_words(arrangement: str, isomer: str, spin2s: int) -> str:
@@ -143,21 +156,43 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
                  _verdicts(c, unit), tidy=False, formula=c.formula)
 
 
+DIFFERENCE_FLAG_KJ_MOL = 20.0  # computed − estimated ΔE beyond this is flagged "large" (fourfold default)
+
+
+def _signed(value, digits: int) -> str:
+    return "—" if value is None else f"{value:+.{digits}f}".replace("-", "−")
+
+
+def ground_words(record) -> str:
+    """A verdict state in words: where a free minimum ended, or the held arrangement."""
+    words = _state_words(record.ended_as, record.isomer if record.ended_as == record.arrangement else "",
+                         record.spin2s)
+    if record.kind == "free":
+        tau4 = "" if record.tau4 is None else f", τ₄ {record.tau4:.2f}"
+        words += f" (free minimum from the {record.name} start{tau4})"
+    return words
+
+
 def _verdicts(c, unit: str) -> list[str]:
-    """Computed vs estimated ground state, then ΔE(SP-4 − T-4) per spin with the difference."""
+    """The verdict (on which energies, complete or not), then ΔE(SP-4 − T-4) per spin with the difference."""
     u = energy_unit(unit)
-    digits, label = u.digits, u.header
     g, e = c.computed_ground, c.estimate.ground
-    computed = "not computed" if g is None else _state_words(g.arrangement, g.isomer, g.spin2s)
-    verdict = "" if c.agrees() is None else (" (agree)" if c.agrees() else " (disagree)")
-    lines = [f"Ground state: computed {computed}; estimated {_state_words(e.arrangement, e.isomer, e.spin2s)}{verdict}."]
+    computed = "not computed" if g is None else ground_words(g)
+    same = {None: "", True: " Same ground state.", False: " Different ground states."}[c.agrees()]
+    lines = [f"Ground state ({c.basis}{'' if c.complete else ', INCOMPLETE'}): computed {computed}; estimated "
+             f"{_state_words(e.arrangement, e.isomer, e.spin2s)}.{same}"]
+    lines += [f"Warning: {w}." for w in c.verdict_warnings()]
     calc, est = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
+    ladder = "held" if any(r.kind == "held" for r in c.held_or_free()) else "free minima by final shape"
     for spin2s in sorted(set(calc) | set(est)):
         a, b = _in(calc.get(spin2s), unit), _in(est.get(spin2s), unit)
-        shown = ["—" if v is None else f"{v:+.{digits}f}".replace("-", "−") for v in (a, b)]
-        difference = "" if a is None or b is None else f", difference {a - b:+.{digits}f}".replace("-", "−")
-        lines.append(f"ΔE(SP-4 − T-4), {multiplicity_word(spin2s)}: computed {shown[0]} {label}, "
-                     f"estimated {shown[1]} {label}{difference}.")
+        difference = ""
+        if a is not None and b is not None:
+            large = abs(calc[spin2s] - est[spin2s]) > DIFFERENCE_FLAG_KJ_MOL
+            difference = (f", difference {_signed(a - b, u.digits)} {u.header}"
+                          + (f" (more than {DIFFERENCE_FLAG_KJ_MOL:.0f} kJ/mol)" if large else ""))
+        lines.append(f"ΔE(SP-4 − T-4), {multiplicity_word(spin2s)} ({ladder}): computed {_signed(a, u.digits)} "
+                     f"{u.header}, estimated {_signed(b, u.digits)} {u.header}{difference}.")
     return lines
 
 
@@ -197,7 +232,9 @@ def summary_table(comparison, unit: str) -> Table:
         Column("d_electrons", "dⁿ", "$d^n$", "number", 0),
         Column("computed_ground", "ground state (calc)", "ground state (calc)"),
         Column("estimated_ground", "ground state (est)", "ground state (est)"),
-        Column("agree", "agree", "agree", "bool"),
+        Column("same_ground", "same ground state", "same ground", "bool"),
+        Column("verdict_basis", "verdict on", "verdict on"),
+        Column("verdict_complete", "complete", "complete", "bool"),
         _energy_column("delta_computed", "ΔE calc", r"$\Delta E_\mathrm{calc}$", unit),
         _energy_column("delta_estimated", "ΔE est", r"$\Delta E_\mathrm{est}$", unit),
         Column("tau4_ground", "τ₄ (ground)", r"$\tau_4$ (ground)", "number", 2),
@@ -213,12 +250,13 @@ def summary_table(comparison, unit: str) -> Table:
         g, e = c.computed_ground, c.estimate.ground
         rows.append({
             "formula": c.formula, "d_electrons": c.d_electrons,
-            "computed_ground": None if g is None else _state_words(g.arrangement, g.isomer, g.spin2s),
-            "estimated_ground": _state_words(e.arrangement, e.isomer, e.spin2s), "agree": c.agrees(),
-            columns[5].key: _in(c.lowest_delta_sp_t_kj_mol(), unit),
-            columns[6].key: _in(c.estimated_lowest_delta_sp_t_kj_mol(), unit),
+            "computed_ground": None if g is None else _state_words(g.ended_as, g.isomer, g.spin2s),
+            "estimated_ground": _state_words(e.arrangement, e.isomer, e.spin2s), "same_ground": c.agrees(),
+            "verdict_basis": c.basis, "verdict_complete": c.complete,
+            columns[7].key: _in(c.lowest_delta_sp_t_kj_mol(), unit),
+            columns[8].key: _in(c.estimated_lowest_delta_sp_t_kj_mol(), unit),
             "tau4_ground": None if g is None else g.tau4,
-            "computed_ground_arrangement": None if g is None else g.arrangement,
+            "computed_ground_arrangement": None if g is None else g.ended_as,
             "computed_ground_isomer": None if g is None else g.isomer,
             "computed_ground_spin2s": None if g is None else g.spin2s,
             "estimated_ground_arrangement": e.arrangement, "estimated_ground_isomer": e.isomer,

@@ -10,8 +10,8 @@ Chains per state and relaxation kind:
   screen    relax (xTB)
   quick     relax (xTB) → single-point (DFT)
   standard  relax-held (xTB, pre-relax) → relax (DFT) → single-point (DFT, larger basis) when asked
-Path points (recipe `path_points = N`): held xTB relaxations along the D2d path, plus a DFT single point
-at `quick` and `standard`.
+Path points (recipe `path_points = N`): held relaxations along the D2d path in the same chain as the
+states, so at `standard` they are relaxed at the DFT geometry level and share the states' energy zero.
 """
 
 from __future__ import annotations
@@ -177,7 +177,7 @@ def _state_chain(builder: _Builder, level, base: JobSpec, atoms, label: str) -> 
     if level.method == "xtb":
         builder.add(relax_task, xtb, None, start, True, label)
         return
-    if level.geometry_from == "xtb" or base.is_path_point:
+    if level.geometry_from == "xtb":
         geometry = builder.add(relax_task, xtb, None, start, False, label)
         builder.add("single-point", replace(base, engine=single_point_engine(level)), geometry, None, True, label)
         return

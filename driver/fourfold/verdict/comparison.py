@@ -3,6 +3,14 @@
 Built from a study's store (final jobs only) and the study itself (for the estimate and the job list), so
 it can be made again at any time from the folder. Energies are relative to the complex's lowest computed
 state, converted only here (CODATA 2018, fourfold.units).
+
+The verdict (the computed ground state) rests on free minima where the study has free relaxations: each is
+named by where it ended (nearest reference shape by CShM, tau4), not where it started, because a held
+relaxation forbids the Jahn–Teller flattening and the C2v opening of the boundary cases. Held energies stay
+as the arrangement ladder ("what holding SP-4 costs"). A study with held relaxations only gets a
+"held only" verdict that says what it cannot see. A state that failed, is pending or did not converge is
+left out of the verdict and named: the verdict is then "incomplete". Broken-symmetry singlets enter with
+their Yamaguchi-projected energy where the triplet at the same geometry was computed (both are shown).
 """
 
 from __future__ import annotations
@@ -12,6 +20,10 @@ from dataclasses import asdict, dataclass, field
 from ..units import convert_energy
 
 SPIN_CONTAMINATION_LIMIT = 0.1  # |⟨S²⟩ − S(S+1)| above this is flagged (fourfold default)
+START_SPREAD_LIMIT_KJ_MOL = 4.0  # starts of one state further apart than this are shown beside it (fourfold default)
+FREE_MINIMA, HELD_ONLY = "free minima", "held only"
+HELD_ONLY_BLIND_SPOT = ("held relaxations keep the ideal L–M–L angles, so they cannot show a Jahn–Teller "
+                        "flattening or a C2v opening of the tetrahedron; add free relaxations for a verdict on minima")
 
 
 @dataclass
@@ -46,11 +58,53 @@ class StateRecord:
     fit_tied_pi: bool | None = None
     trans_angle_deg: float | None = None  # path points only
     job_key: str | None = None
+    geometry_converged: bool | None = None  # the parent relaxation of a single point
+    homo_energy_hartree: float | None = None
+    aufbau: bool | None = None
+    projected_energy_hartree: float | None = None  # Yamaguchi-projected BS singlet
+    high_spin_energy_hartree: float | None = None  # the triplet at the BS singlet's geometry
+    unprojected_relative_kj_mol: float | None = None
+    starts: list | None = None  # state search: every SCF start's label and energy
+    spread_kj_mol: float | None = None
+    start_won: str | None = None
+    occupation_matches: bool | None = None
     warnings: list = field(default_factory=list)
 
     @property
     def name(self) -> str:
         return f"{self.arrangement} {self.isomer}".strip()
+
+    @property
+    def verdict_energy_hartree(self) -> float | None:
+        """The energy the verdict uses: the projected one for a BS singlet where it exists."""
+        return self.projected_energy_hartree if self.projected_energy_hartree is not None else self.energy_hartree
+
+    @property
+    def exclusion(self) -> str | None:
+        """Why this state cannot enter a verdict (None: it can)."""
+        if self.status != "done" or self.energy_hartree is None:
+            return self.status if not self.reason else f"{self.status}: {self.reason}"
+        if self.converged is False:
+            return "not converged"
+        if self.geometry_converged is False:
+            return "its relaxation did not converge"
+        return None
+
+    @property
+    def ended_as(self) -> str:
+        """Where a free relaxation ended (nearest reference shape); a held one is its arrangement."""
+        if self.kind == "free" and self.nearest_shape:
+            return self.nearest_shape
+        return self.arrangement
+
+    @property
+    def impure(self) -> str | None:
+        """'broken-symmetry' / 'spin-contaminated' for solutions whose spin is not what the label says."""
+        if self.broken_symmetry:
+            return "broken-symmetry"
+        if self.spin_contaminated:
+            return "spin-contaminated"
+        return None
 
 
 @dataclass
@@ -63,23 +117,68 @@ class ComplexComparison:
     path_records: list[StateRecord] = field(default_factory=list)  # held relaxations along the D2d path
 
     def held_or_free(self) -> list[StateRecord]:
-        """Records that define a state's energy: held relaxations where the study has them, else free."""
+        """The arrangement ladder: held relaxations where the study has them, else free (usable states only)."""
         kinds = {r.kind for r in self.records if r.status == "done"}
         preferred = "held" if "held" in kinds else "free"
-        return [r for r in self.records if r.kind == preferred and r.status == "done" and r.energy_hartree is not None]
+        return [r for r in self.records if r.kind == preferred and r.exclusion is None]
+
+    @property
+    def basis(self) -> str:
+        """Which energies the verdict uses: free minima where the study has free relaxations, else held only."""
+        return FREE_MINIMA if any(r.kind == "free" for r in self.records) else HELD_ONLY
+
+    def _basis_records(self) -> list[StateRecord]:
+        kind = "free" if self.basis == FREE_MINIMA else "held"
+        return [r for r in self.records if r.kind == kind]
+
+    def verdict_records(self) -> list[StateRecord]:
+        return [r for r in self._basis_records() if r.exclusion is None]
+
+    def missing(self) -> list[tuple[StateRecord, str]]:
+        """States the verdict needs but cannot use, each with the reason."""
+        return [(r, r.exclusion) for r in self._basis_records() if r.exclusion is not None]
+
+    @property
+    def complete(self) -> bool:
+        return not self.missing()
+
+    def _ranked(self) -> list[StateRecord]:
+        return sorted(self.verdict_records(), key=lambda r: r.verdict_energy_hartree)
 
     @property
     def computed_ground(self) -> StateRecord | None:
-        candidates = self.held_or_free()
-        return min(candidates, key=lambda r: r.energy_hartree) if candidates else None
+        ranked = self._ranked()
+        return ranked[0] if ranked else None
+
+    @property
+    def runner_up(self) -> StateRecord | None:
+        ranked = self._ranked()
+        return ranked[1] if len(ranked) > 1 else None
+
+    def verdict_warnings(self) -> list[str]:
+        """What a referee would ask about the verdict: missing states, impure spin, starts that disagree."""
+        found = [f"verdict incomplete: {r.name} {r.kind} 2S={r.spin2s} {why}" for r, why in self.missing()]
+        if self.basis == HELD_ONLY:
+            found.append(f"held-only verdict: {HELD_ONLY_BLIND_SPOT}")
+        for role, r in (("ground state", self.computed_ground), ("runner-up", self.runner_up)):
+            if r is not None and r.impure:
+                found.append(f"the {role} ({r.name}, 2S={r.spin2s}) is a {r.impure} solution (⟨S²⟩ {r.s2:.2f})")
+        for r in self.records:
+            if r.spread_kj_mol is not None and r.spread_kj_mol > START_SPREAD_LIMIT_KJ_MOL:
+                found.append(f"{r.name} {r.kind} 2S={r.spin2s}: SCF starts differ by {r.spread_kj_mol:.1f} kJ/mol "
+                             f"(lowest kept, from the {r.start_won} start)")
+            if r.aufbau is False or r.occupation_matches is False:
+                found.append(f"{r.name} {r.kind} 2S={r.spin2s}: the converged occupation is not the intended "
+                             "one (non-aufbau or another d configuration): possibly an excited solution")
+        return found
 
     def delta_sp_t_kj_mol(self) -> dict[int, float]:
-        """Computed E(SP-4) − E(T-4) per 2S (lowest isomer of each)."""
+        """Computed E(SP-4) − E(T-4) per 2S (lowest isomer of each) on the arrangement ladder."""
         found = {}
         records = self.held_or_free()
         for spin2s in sorted({r.spin2s for r in records}):
-            sp = [r.relative_kj_mol for r in records if r.spin2s == spin2s and r.arrangement == "SP-4"]
-            t = [r.relative_kj_mol for r in records if r.spin2s == spin2s and r.arrangement == "T-4"]
+            sp = [r.relative_kj_mol for r in records if r.spin2s == spin2s and r.ended_as == "SP-4"]
+            t = [r.relative_kj_mol for r in records if r.spin2s == spin2s and r.ended_as == "T-4"]
             if sp and t:
                 found[spin2s] = min(sp) - min(t)
         return found
@@ -88,10 +187,10 @@ class ComplexComparison:
         return {s: convert_energy(v, "cm", "kj") for s, v in self.estimate.delta_sp_t_cm().items()}
 
     def lowest_delta_sp_t_kj_mol(self) -> float | None:
-        """Computed E(lowest SP-4 state) − E(lowest T-4 state), any spin: the number that decides the shape."""
+        """Computed E(lowest SP-4 state) − E(lowest T-4 state), any spin, on the arrangement ladder."""
         records = self.held_or_free()
-        sp = [r.relative_kj_mol for r in records if r.arrangement == "SP-4"]
-        t = [r.relative_kj_mol for r in records if r.arrangement == "T-4"]
+        sp = [r.relative_kj_mol for r in records if r.ended_as == "SP-4"]
+        t = [r.relative_kj_mol for r in records if r.ended_as == "T-4"]
         return min(sp) - min(t) if sp and t else None
 
     def estimated_lowest_delta_sp_t_kj_mol(self) -> float | None:
@@ -102,11 +201,12 @@ class ComplexComparison:
         return convert_energy(lowest["SP-4"] - lowest["T-4"], "cm", "kj")
 
     def agrees(self) -> bool | None:
+        """Same ground state (shape where the verdict's state ended, and 2S) as the estimate; None if none."""
         ground = self.computed_ground
         if ground is None:
             return None
         e = self.estimate.ground
-        return (ground.arrangement, ground.spin2s) == (e.arrangement, e.spin2s)
+        return (ground.ended_as, ground.spin2s) == (e.arrangement, e.spin2s)
 
 
 @dataclass
@@ -124,7 +224,12 @@ class Comparison:
             out["complexes"].append({
                 "formula": c.formula, "level": c.level, "d_electrons": c.d_electrons,
                 "states": [{k: v for k, v in asdict(r).items() if k != "warnings"} for r in c.records],
-                "ground": None if g is None else {"arrangement": g.arrangement, "isomer": g.isomer, "spin2s": g.spin2s},
+                "ground": None if g is None else {"arrangement": g.arrangement, "isomer": g.isomer, "spin2s": g.spin2s,
+                                                  "kind": g.kind, "ended_as": g.ended_as, "tau4": g.tau4},
+                "verdict": {"basis": c.basis, "complete": c.complete,
+                            "missing": [{"state": r.name, "kind": r.kind, "spin2s": r.spin2s, "reason": why}
+                                        for r, why in c.missing()],
+                            "warnings": c.verdict_warnings()},
                 "estimate_ground": {"arrangement": e.arrangement, "isomer": e.isomer, "spin2s": e.spin2s},
                 "agree": c.agrees(),
                 "delta_sp_minus_t_kj_mol": {str(k): v for k, v in c.delta_sp_t_kj_mol().items()},
@@ -152,20 +257,55 @@ def build_comparison(study, results_by_key: dict) -> Comparison:
         path_records = [_record(cx.formula, job, results_by_key.get(job.key), None, warnings)
                         for job in path_jobs if job.spec.formula == cx.formula]
         done = [r for r in records if r.status == "done" and r.energy_hartree is not None]
-        lowest = min(r.energy_hartree for r in done) if done else None
+        lowest = min(r.verdict_energy_hartree for r in done) if done else None
         for r in done:
-            r.relative_kj_mol = convert_energy(r.energy_hartree - lowest, "hartree", "kj")
-        _relative_path_energies(path_records, lowest)
-        if cx.charge <= -2 and study.level.method != "xtb" and study.level.solvent is None:
-            warnings.append(f"{cx.formula} is a {abs(cx.charge)}− anion computed in the gas phase: its outer "
-                            "electrons may be unbound; prefer a solvent (C-PCM) for final numbers.")
+            r.relative_kj_mol = convert_energy(r.verdict_energy_hartree - lowest, "hartree", "kj")
+            if r.projected_energy_hartree is not None:
+                r.unprojected_relative_kj_mol = convert_energy(r.energy_hartree - lowest, "hartree", "kj")
+        _relative_path_energies(path_records, lowest, study.level)
+        warnings += _charge_warnings(cx, records, study.level)
         complexes.append(ComplexComparison(cx.formula, cx.d_electrons, records, est, study.level.name, path_records))
-    return Comparison(study.title, study.level.name, complexes, warnings)
+    return Comparison(study.title, study.level.name, complexes, _unique(warnings + energy_caveats(study.level)))
+
+
+def _unique(lines: list[str]) -> list[str]:
+    return list(dict.fromkeys(lines))
+
+
+def _charge_warnings(cx, records: list[StateRecord], level) -> list[str]:
+    """An anion's outermost electrons may be unbound: a gas-phase dianion, or any positive HOMO energy."""
+    found = []
+    if cx.charge <= -2 and level.method != "xtb" and level.solvent is None:
+        found.append(f"{cx.formula} is a {abs(cx.charge)}− anion computed in the gas phase: its outer "
+                     "electrons may be unbound; prefer a solvent (C-PCM) for final numbers.")
+    unbound = [r for r in records if r.homo_energy_hartree is not None and r.homo_energy_hartree > 0]
+    if cx.charge < 0 and unbound:
+        names = ", ".join(f"{r.name} 2S={r.spin2s} {r.kind}" for r in unbound)
+        found.append(f"{cx.formula}: positive HOMO energy (an unbound electron) in {names}; these energies are not "
+                     "reliable without a solvent model or diffuse functions.")
+    return found
+
+
+def energy_caveats(level) -> list[str]:
+    """What every report says about the energies it shows."""
+    from ..compute.levels import exact_exchange_fraction
+
+    found = ["ΔE values are electronic energies: no zero-point, thermal or entropy terms are included."]
+    if level.method == "xtb":
+        return found
+    fraction = exact_exchange_fraction(level)
+    found.append(f"{level.functional.upper() if level.functional else 'HF'} has {100 * fraction:.0f} % exact "
+                 "exchange; more exact exchange favours high spin, so spin-state gaps carry a functional bias of "
+                 "tens of kJ/mol (Reiher, Salomon, Hess, Theor. Chem. Acc. 2001, 107, 48; Swart, J. Chem. Theory "
+                 "Comput. 2008, 4, 2057 — from memory).")
+    return found
 
 
 _RESULT_FIELDS = ("energy_hartree", "converged", "reason", "tau4", "tau4_prime", "nearest_shape", "s2", "s2_expected",
                   "spin_contaminated", "broken_symmetry", "rung", "cycles", "steps", "d_levels_cm", "d_level_labels",
-                  "fitted_e_sigma_cm", "fitted_e_pi_cm", "fit_tied_pi", "wall_seconds")
+                  "fitted_e_sigma_cm", "fitted_e_pi_cm", "fit_tied_pi", "wall_seconds", "geometry_converged",
+                  "homo_energy_hartree", "aufbau", "projected_energy_hartree", "high_spin_energy_hartree", "starts",
+                  "spread_kj_mol", "start_won", "occupation_matches")
 
 
 def _record(formula: str, job, result: dict | None, est, warnings: list) -> StateRecord:
@@ -187,8 +327,11 @@ def _record(formula: str, job, result: dict | None, est, warnings: list) -> Stat
     return record
 
 
-def _relative_path_energies(path_records: list[StateRecord], lowest_hartree: float | None) -> None:
-    """Path energies on the same zero as the states (the complex's lowest state), else the path's lowest."""
+def _relative_path_energies(path_records: list[StateRecord], lowest_hartree: float | None, level) -> None:
+    """Path energies on the same zero as the states (the complex's lowest state), else the path's lowest.
+
+    Path points are relaxed at the level's own geometry level (fourfold.study.jobs), so both sets of
+    energies come from the same kind of structure and share a zero."""
     done = [r for r in path_records if r.status == "done" and r.energy_hartree is not None]
     if not done:
         return
