@@ -14,7 +14,22 @@ ARRANGEMENT_CHOICES = ("T-4", "SP-4", "SS-4", "vTBPY-4")
 
 
 class _Group(click.Group):
-    """Turns fourfold's own errors into one line on stderr and exit status 2 (no traceback)."""
+    """Turns fourfold's own errors and click's usage errors into one line on stderr and exit status 2."""
+
+    def main(self, args=None, prog_name=None, **extra):
+        try:
+            code = super().main(args=args, prog_name=prog_name, standalone_mode=False, **extra)
+        except click.UsageError as error:
+            where = f" (see '{error.ctx.command_path} --help')" if error.ctx else ""
+            click.echo(f"error: {error.format_message()}{where}", err=True)
+            sys.exit(2)
+        except click.ClickException as error:
+            click.echo(f"error: {error.format_message()}", err=True)
+            sys.exit(error.exit_code)
+        except click.Abort:
+            click.echo("stopped", err=True)
+            sys.exit(130)
+        sys.exit(code if isinstance(code, int) else 0)
 
     def invoke(self, ctx):
         try:
@@ -72,7 +87,9 @@ def estimate(formula, arrangements, overrides, spins, as_json):
     if as_json:
         click.echo(json.dumps(result.as_dict(), indent=2, ensure_ascii=False))
     else:
-        click.echo(estimate_text(result))
+        from .chem.notation import charge_written
+
+        click.echo(estimate_text(result, cx, charge_assumed=not charge_written(formula)))
 
 
 @main.command()

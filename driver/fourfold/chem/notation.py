@@ -14,3 +14,9 @@ def formula_slug(formula: str) -> str:
         body, charge = formula, ""
     stem = re.sub(r"[^A-Za-z0-9]", "", body)
     return stem + (f"_{re.sub(r'[^0-9+-]', '', charge)}" if charge else "")
+
+
+def charge_written(formula: str) -> bool:
+    """Whether a formula as typed states its charge ('[NiCl4]2-', '[Ni(NH3)4]2+'), or leaves it to be assumed 0."""
+    text = formula.strip().replace("−", "-").replace("⁻", "-").replace("⁺", "+")
+    return text.endswith(("+", "-"))

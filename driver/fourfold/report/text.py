@@ -33,10 +33,20 @@ def estimate_table(result) -> Table:
                  formula=result.formula)
 
 
-def estimate_text(result) -> str:
+def complex_header(cx, charge_assumed: bool = False) -> str:
+    """The metal's oxidation state, d count and the charge, and a plain word when the charge was assumed."""
+    charge = f"{cx.charge:+d}" if cx.charge else "0"
+    line = f"{cx.metal.symbol}({cx.oxidation_state:+d}), d{cx.d_electrons}, charge {charge}"
+    if charge_assumed:
+        line += (f" — no charge was written, so {charge} is assumed and {cx.metal.symbol} is "
+                 f"{cx.oxidation_state:+d} by the charge balance; write the charge (e.g. [NiCl4]2-) if that is not meant")
+    return line
+
+
+def estimate_text(result, cx=None, charge_assumed: bool = False) -> str:
     """The estimate as a chemist reads it: d levels per arrangement, terms per state, ΔE, ground state."""
     table = estimate_table(result)
-    out = [table.heading("text"), ""]
+    out = [table.heading("text")] + ([complex_header(cx, charge_assumed)] if cx is not None else []) + [""]
     seen = set()
     for s in result.states:
         key = (s.arrangement, s.isomer)

@@ -305,7 +305,11 @@ def scan_recipe_text(formula: str, level: str, relaxations=RELAXATION_KINDS, arr
 
 def recipe_for_formula(formula: str, level: str) -> Study:
     """A one-complex study (default arrangements, spins and relaxations) for `fourfold run --formula`."""
-    return parse_recipe(scan_recipe_text(formula, level), "--formula")
+    complex_from_formula(formula)  # a mistake in the formula gets its own error, not one about a recipe
+    try:
+        return parse_recipe(scan_recipe_text(formula, level), "--formula")
+    except InputError as error:
+        raise InputError(str(error).replace("--formula: level: ", "--level: ")) from None
 
 
 def _toml_level(level) -> dict:
