@@ -104,14 +104,24 @@ def run_summary_text(summary, out_dir) -> str:
     line = (f"{summary.total} jobs: {summary.done} done, {summary.failed} failed "
             f"({summary.ran} run now, {summary.skipped} already in the store) in {summary.wall_seconds:.0f} s; "
             f"results in {out_dir}")
+    if summary.ran and summary.wall_seconds > 0:
+        line += (f"\nthe jobs' own times add up to {summary.job_seconds:.0f} s: {summary.workers} workers kept "
+                 f"{summary.job_seconds / (summary.workers * summary.wall_seconds):.0%} busy")
     if summary.failures:
         line += "\nfailed: " + "; ".join(f"{label} — {reason}" for label, reason in summary.failures[:10])
     return line
 
 
 def status_text(found: dict) -> str:
-    lines = [f"{found['folder']}: {found['title']} (level {found['level']})",
-             f"{found['total']} jobs: {found['done']} done, {found['failed']} failed, {found['pending']} pending"]
+    lines = [f"{found['folder']}: {found['title']} (level {found['level']}; store {found['store']})",
+             f"{found['total']} jobs: {found['done']} done, {found['failed']} failed, {found['running']} running, "
+             f"{found['pending']} pending"]
+    if found["run_on"]:
+        eta = found["eta_seconds"]
+        lines.append(f"a run is on ({found['run_holder']})" + ("" if eta is None else
+                     f"; about {eta / 60:.0f} min left at the mean time of the jobs done so far"))
+    for formula, counts in found["per_complex"].items():
+        lines.append(f"  {formula}: " + ", ".join(f"{n} {state}" for state, n in counts.items() if n))
     for failure in found["failures"]:
         lines.append(f"  failed: {failure['label']} [{failure['task']}] — {failure['reason']}")
     return "\n".join(lines)
