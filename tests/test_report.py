@@ -131,7 +131,8 @@ def test_states_csv_reads_back_to_the_same_numbers(studies):
 
 
 def test_every_tidy_table_round_trips_through_csv(studies):
-    from fourfold.report.tables import study_tables, to_csv
+    from fourfold.report.table import to_csv
+    from fourfold.report.tables import study_tables
 
     for table in (t for t in study_tables(studies["report"].comparison, "kj") if t.tidy):
         text = (studies["pair"] / "tables" / f"{table.name}.csv").read_text(encoding="utf-8")
@@ -349,12 +350,13 @@ def test_report_command_units_formats_and_errors(studies, tmp_path):
     empty = tmp_path / "empty"
     empty.mkdir()
     not_a_study = fourfold("report", str(empty))
-    assert not_a_study.returncode == 2 and "not a study folder" in not_a_study.stderr
+    assert not_a_study.returncode == 2 and "not a fourfold study folder" in not_a_study.stderr
 
 
 def test_formula_markup():
-    from fourfold.report.markup import formula_latex, formula_unicode, slug
-    from fourfold.report.tables import tex_escape
+    from fourfold.chem.notation import formula_slug as slug
+    from fourfold.report.markup import formula_latex, formula_unicode
+    from fourfold.report.table import tex_escape
 
     # counts as subscripts, charge as superscript with a true minus (IUPAC Red Book 2005 IR-4; from memory)
     assert formula_unicode("[NiCl2(PMe3)2]") == "[NiCl₂(PMe₃)₂]"

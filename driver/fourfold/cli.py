@@ -139,7 +139,8 @@ def _run_and_print(study, out_dir, options: dict, as_json: bool, single: bool = 
     from .report.text import comparison_text, run_summary_text
 
     progress, update = _progress_printer(options.pop("quiet") or as_json)
-    run_options = RunOptions(out_dir=out_dir, progress=update, **options)
+    run_options = RunOptions(out_dir=out_dir, progress=update, **options,
+                             on_start=lambda: _print_cautions(e.complex for e in study.complexes))
     if progress:
         with progress:
             outcome = run_pipeline(study, run_options)
@@ -205,7 +206,6 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
     default_name = Path(recipe).stem if recipe else f"{formula_slug(study.complexes[0].complex.formula)}_{level}"
     pool = _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config)
-    _print_cautions(e.complex for e in study.complexes)
     _run_and_print(study, out_dir or Path("outputs") / default_name,
                    dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s,
                         quiet=quiet, store_url=store_url, pool_factory=pool), as_json, single=bool(formula))
@@ -246,7 +246,6 @@ def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_js
     if level:
         study = study.with_level(level)  # the folder's recipe.toml is written from the study: it says what ran
         out_dir = out_dir or Path("outputs") / f"demo-{study.level.name}"
-    _print_cautions(e.complex for e in study.complexes)
     _run_and_print(study, out_dir or Path("outputs") / "demo",
                    dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s, quiet=quiet),
                    as_json)
@@ -272,8 +271,8 @@ def report(folder, unit, formats, store_url):
     from .report.text import report_text
     from .study.recipe import load_folder_study
 
-    _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"))
+    _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     click.echo(report_text(written), nl=False)
 
 

@@ -36,7 +36,8 @@ _POSTGRES_PREFIXES = ("postgresql://", "postgres://")
 @dataclass(frozen=True)
 class RunOptions:
     """How a study is run and reported. ``progress(summary, running_labels)`` is called as jobs finish;
-    ``pool_factory(out_dir, timeout_s)`` makes another executor (fourfold.study.cluster)."""
+    ``pool_factory(out_dir, timeout_s)`` makes another executor (fourfold.study.cluster); ``on_start()`` is
+    called once the folder, store and executor are ready, before any job runs."""
 
     out_dir: Path | str
     workers: int = 2
@@ -48,6 +49,7 @@ class RunOptions:
     formats: tuple[str, ...] = FORMATS
     pool_factory: Callable | None = None
     progress: Callable | None = None
+    on_start: Callable | None = None
 
 
 @dataclass
@@ -85,7 +87,8 @@ def run_pipeline(study, options: RunOptions) -> Outcome:
     with RunLock(out_dir):
         summary = run_study(study, out_dir, workers=options.workers, threads=options.threads,
                             retry_failed=options.retry_failed, timeout_s=options.timeout_s, progress=options.progress,
-                            store_url=options.store_url, pool_factory=options.pool_factory)
+                            store_url=options.store_url, pool_factory=options.pool_factory,
+                            on_start=options.on_start)
         report = write_report(out_dir, study, open_store(out_dir, options.store_url), options.unit, options.formats)
     return Outcome(summary, report)
 

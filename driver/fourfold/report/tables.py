@@ -183,7 +183,7 @@ def _verdicts(c, unit: str) -> list[str]:
              f"{_state_words(e.arrangement, e.isomer, e.spin2s)}.{same}"]
     lines += [f"Warning: {w}." for w in c.verdict_warnings()]
     calc, est = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
-    ladder = "held" if any(r.kind == "held" for r in c.held_or_free()) else "free minima by final shape"
+    ladder = "held" if c.ladder_kind == "held" else "free minima by final shape"
     for spin2s in sorted(set(calc) | set(est)):
         a, b = _in(calc.get(spin2s), unit), _in(est.get(spin2s), unit)
         difference = ""

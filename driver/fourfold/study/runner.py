@@ -110,11 +110,12 @@ def write_provenance(out_dir: Path, study) -> None:
 
 def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: bool = False,
               timeout_s: float | None = None, progress=None, store_url: str | None = None,
-              pool_factory=None) -> RunSummary:
+              pool_factory=None, on_start=None) -> RunSummary:
     """Run every job of ``study`` not yet done in ``out_dir``'s store; returns counts and failures.
 
     ``progress`` is an optional callable(summary, running_labels) called as jobs finish.
     ``pool_factory(out_dir, timeout_s)`` makes the executor (default: a LocalPool of ``workers``).
+    ``on_start()`` is called once the folder, the store and the executor are ready, before any job runs.
     """
     out_dir = Path(out_dir)
     timeout_s = float(timeout_s or study.run.get("timeout_s", DEFAULT_TIMEOUT_S))
@@ -141,6 +142,8 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
         pool = (pool_factory(out_dir, timeout_s) if pool_factory
                 else LocalPool(workers, threads, out_dir, timeout_s))
         summary.workers = workers if pool_factory is None else max(1, pool.free_slots())
+        if on_start:
+            on_start()
         _drive(pending, stored, store, pool, summary, progress, _RunningFile(out_dir, summary.workers))
     summary.wall_seconds = time.perf_counter() - started
     return summary

@@ -116,11 +116,16 @@ class ComplexComparison:
     level: str
     path_records: list[StateRecord] = field(default_factory=list)  # held relaxations along the D2d path
 
+    @property
+    def ladder_kind(self) -> str:
+        """Which relaxations make the arrangement ladder: held where the study has them, else free."""
+        return "held" if any(r.kind == "held" for r in self.records) else "free"
+
     def held_or_free(self) -> list[StateRecord]:
-        """The arrangement ladder: held relaxations where the study has them, else free (usable states only)."""
-        kinds = {r.kind for r in self.records if r.status == "done"}
-        preferred = "held" if "held" in kinds else "free"
-        return [r for r in self.records if r.kind == preferred and r.exclusion is None]
+        """The arrangement ladder ("what holding SP-4 costs"): every state of the ladder's kind with an energy.
+        Unlike the verdict it keeps states whose relaxation stopped unconverged (their notes say so)."""
+        return [r for r in self.records if r.kind == self.ladder_kind and r.status == "done"
+                and r.energy_hartree is not None]
 
     @property
     def basis(self) -> str:
