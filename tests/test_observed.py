@@ -44,6 +44,14 @@ def test_formula_parses_to_the_written_charge_and_d_count(entry):
     assert {ligand for ligand, _ in entry.distances_angstrom} <= names
 
 
+@pytest.mark.parametrize("entry", AVAILABLE, ids=lambda e: e.name)
+def test_canonical_formula_parses_back_to_the_same_complex(entry):
+    # Single-letter ligands once printed as '[Hg(I)4]2-', which reads back as mercury(I).
+    cx = complex_from_formula(entry.formula)
+    again = complex_from_formula(cx.formula)
+    assert (again.oxidation_state, again.composition, again.charge) == (cx.oxidation_state, cx.composition, cx.charge)
+
+
 def test_entries_waiting_for_ligands_name_them():
     waiting = [e for e in ENTRIES if e not in AVAILABLE]
     assert all(e.needs_ligands for e in waiting)
