@@ -67,7 +67,8 @@ class Complex:
         """Canonical formula: ligands grouped in order of first appearance, charge after the bracket."""
         parts = []
         for name, count in self.composition.items():
-            token = name if len(name) <= 2 and name[0].isupper() and name[1:].islower() else f"({name})"
+            bare = len(name) <= 2 and name[0].isupper() and (name[1:] == "" or name[1:].islower())
+            token = name if bare else f"({name})"
             if count == 1 and token.startswith("("):
                 token = token[1:-1] if len(self.composition) == 1 else token
             parts.append(token + (str(count) if count > 1 else ""))
