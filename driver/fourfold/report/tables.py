@@ -43,14 +43,16 @@ def _sorted_records(records):
     return sorted(records, key=lambda r: (arrangement_rank(r.arrangement), r.isomer, r.spin2s, r.kind))
 
 
-def _note(record) -> str:
-    """Everything a reader must know about one state's numbers, in a few words."""
+def _note(record, unit: str) -> str:
+    """Everything a reader must know about one state's numbers, in a few words (energies in ``unit``)."""
+    u = energy_unit(unit)
     if record.status != "done":
         return record.status if not record.reason else f"{record.status}: {record.reason}"
     notes = []
     if record.broken_symmetry:
         notes.append("broken-symmetry singlet" + (
-            f", projected (unprojected {record.unprojected_relative_kj_mol:+.1f} kJ/mol)".replace("-", "−")
+            f", projected (unprojected {_signed(u.from_kj_mol(record.unprojected_relative_kj_mol), u.digits)} "
+            f"{u.header})"
             if record.projected_energy_hartree is not None else ", unprojected"))
     elif record.spin_contaminated:
         notes.append("spin contaminated")
@@ -61,7 +63,7 @@ def _note(record) -> str:
     if record.kind == "free" and record.nearest_shape and record.nearest_shape != record.arrangement:
         notes.append(f"ended {record.nearest_shape}")
     if record.spread_kj_mol is not None and record.spread_kj_mol > START_SPREAD_LIMIT_KJ_MOL:
-        notes.append(f"starts spread {record.spread_kj_mol:.0f} kJ/mol")
+        notes.append(f"starts spread {u.from_kj_mol(record.spread_kj_mol):.{u.digits}f} {u.header}")
     if record.aufbau is False or record.occupation_matches is False:
         notes.append("occupation off")
     return "; ".join(notes)
@@ -110,7 +112,7 @@ def states_table(comparison, unit: str) -> Table:
                 columns[11].key: _in(r.relative_kj_mol, unit), columns[12].key: _in(r.estimate_kj_mol, unit),
                 "s2": r.s2, "s2_expected": r.s2_expected, "spin_contaminated": r.spin_contaminated,
                 "broken_symmetry": r.broken_symmetry, "tau4": r.tau4, "tau4_prime": r.tau4_prime,
-                "nearest_shape": r.nearest_shape, "engine": r.engine, "level": c.level, "note": _note(r),
+                "nearest_shape": r.nearest_shape, "engine": r.engine, "level": c.level, "note": _note(r, unit),
                 "warnings": "; ".join(r.warnings), "job_key": r.job_key,
             })
     return Table("states", "Every computed state", columns, rows, list(comparison.warnings), display=False)
@@ -149,7 +151,7 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
         row["converged"] = " / ".join(f"{k}: {_yes_no(by_kind[k].converged)}" if len(kinds) > 1
                                       else _yes_no(by_kind[k].converged) for k in kinds if k in by_kind)
         row["note"] = "; ".join(f"{k}: {n}" if len(kinds) > 1 else n
-                                for k in kinds if k in by_kind and (n := _note(by_kind[k])))
+                                for k in kinds if k in by_kind and (n := _note(by_kind[k], unit)))
         rows.append(row)
     title = f"{{formula}} (d{c.d_electrons}), level {c.level}: energies relative to the lowest state"
     return Table(f"states_{formula_slug(c.formula)}", title, columns, rows, _complex_warnings(c, warnings),
@@ -181,7 +183,7 @@ def _verdicts(c, unit: str) -> list[str]:
     same = {None: "", True: " Same ground state.", False: " Different ground states."}[c.agrees()]
     lines = [f"Ground state ({c.basis}{'' if c.complete else ', INCOMPLETE'}): computed {computed}; estimated "
              f"{_state_words(e.arrangement, e.isomer, e.spin2s)}.{same}"]
-    lines += [f"Warning: {w}." for w in c.verdict_warnings()]
+    lines += [f"Warning: {w}." for w in c.verdict_warnings(unit)]
     calc, est = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
     ladder = "held" if c.ladder_kind == "held" else "free minima by final shape"
     for spin2s in sorted(set(calc) | set(est)):
@@ -190,7 +192,8 @@ def _verdicts(c, unit: str) -> list[str]:
         if a is not None and b is not None:
             large = abs(calc[spin2s] - est[spin2s]) > DIFFERENCE_FLAG_KJ_MOL
             difference = (f", difference {_signed(a - b, u.digits)} {u.header}"
-                          + (f" (more than {DIFFERENCE_FLAG_KJ_MOL:.0f} kJ/mol)" if large else ""))
+                          + (f" (more than {u.from_kj_mol(DIFFERENCE_FLAG_KJ_MOL):.{u.digits}f} {u.header})"
+                             if large else ""))
         lines.append(f"ΔE(SP-4 − T-4), {multiplicity_word(spin2s)} ({ladder}): computed {_signed(a, u.digits)} "
                      f"{u.header}, estimated {_signed(b, u.digits)} {u.header}{difference}.")
     return lines
