@@ -571,8 +571,8 @@ def _scf_sentences(level, has_single_point: bool, comparison, state_search: str 
              ") followed by an integer-occupation SCF. Open shells were treated unrestricted. Singlets were "
              "computed restricted first and tested for an RKS → UKS (RHF → UHF) instability; where a lower "
              "broken-symmetry UKS solution exists, it is the singlet reported, with its ", s2, ". "]
-    projected = comparison is None or any(r.projected_energy_hartree is not None
-                                          for c in comparison.complexes for r in c.records)
+    projected = comparison is None or any(r.projected_energy_hartree is not None for c in comparison.complexes
+                                          for r in [*c.records, *c.path_records])
     if has_single_point and projected:
         parts += ["Broken-symmetry singlet energies were spin-projected with Yamaguchi's formula ",
                   _cite("yamaguchi1988-projection"), " using the triplet at the same geometry. "]
