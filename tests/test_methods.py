@@ -371,7 +371,12 @@ def test_write_report_writes_the_methods_files_into_tables(tmp_path):
     from fourfold.report.render import write_report
 
     study = parse_recipe(SCREEN)
-    report = write_report(tmp_path, study, open_store(tmp_path, must_exist=False), formats=("md",))
-    names = {p.name for p in report.tables}
+    store = open_store(tmp_path, must_exist=False)  # no results yet: the methods text needs only the study
+    names = {p.name for p in write_report(tmp_path, study, store).tables}
     assert {"methods.md", "methods.tex", "references.bib"} <= names
     assert (tmp_path / "tables" / "methods.md").read_text(encoding="utf-8").count("## Safety") == 1
+    # the formats asked for decide which of the two texts are written
+    names = {p.name for p in write_report(tmp_path / "md", study, store, formats=("md", "csv")).tables}
+    assert {"methods.md", "references.bib"} <= names and "methods.tex" not in names
+    names = {p.name for p in write_report(tmp_path / "csv", study, store, formats=("csv",)).tables}
+    assert not names & {"methods.md", "methods.tex", "references.bib"}

@@ -726,9 +726,12 @@ def study_versions(folder) -> dict[str, str]:
     return versions
 
 
-def methods_files(study, versions: dict, comparison=None, safety_markdown: str = "") -> dict[str, str]:
-    """File name -> text of methods.md (the text, its reference list, then ``safety_markdown``), methods.tex
-    and references.bib."""
+def methods_files(study, versions: dict, comparison=None, safety_markdown: str = "",
+                  formats=("md", "tex")) -> dict[str, str]:
+    """File name -> text of methods.md (the text, its reference list, then ``safety_markdown``) when "md" is in
+    ``formats``, methods.tex when "tex" is, and references.bib with either."""
+    if not {"md", "tex"} & set(formats):
+        return {}
     text = methods_text(study, versions, comparison)
     entries = parse_bibtex(text.bibtex)
     markdown = "\n".join([f"# Computational details: {study.title}", "",
@@ -740,4 +743,6 @@ def methods_files(study, versions: dict, comparison=None, safety_markdown: str =
                        f"{versions.get('fourfold', 'absent')}.",
                        r"% The \cite keys are entries of references.bib in this folder (\bibliography{references}).",
                        "", text.latex])
-    return {"methods.md": markdown, "methods.tex": latex, "references.bib": text.bibtex}
+    files = {"methods.md": markdown, "methods.tex": latex}
+    return {**{name: body for name, body in files.items() if name.rpartition(".")[2] in formats},
+            "references.bib": text.bibtex}
