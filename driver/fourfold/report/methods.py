@@ -11,8 +11,10 @@ references Libxc itself gives for it.
 One text, two forms: Markdown with pandoc citations (``[@key]``) and LaTeX with ``\\cite{key}``; ``bibtex``
 holds exactly the cited entries, in the order of first citation (programs' entries with the version that ran).
 
-``write_methods(folder, study)`` writes methods.md (with a reference list and the study's safety cautions),
-methods.tex and references.bib.
+``methods_files(study, versions, comparison, safety_markdown, formats)`` gives the report's files: methods.md
+(the text, a reference list, the study's safety cautions), methods.tex and references.bib; ``write_report``
+writes them into the study folder's tables/ beside report.md. ``study_versions(folder)`` takes the versions
+the run recorded (versions.json) over the installed ones.
 """
 
 from __future__ import annotations
@@ -97,7 +99,7 @@ def _symbol(base: str, sub: str) -> Math:
 
 # ------------------------------------------------------------------------------------------- versions
 
-# name -> (how the text names it, citation keys); the order is the order of the text
+# name -> (how the text names it, citation keys)
 CODES = {
     "fourfold": ("fourfold", ("fourfold",)),
     "tblite": ("tblite", ("tblite",)),
@@ -131,8 +133,9 @@ def method_versions() -> dict[str, str]:
 
 
 def codes_used(level) -> tuple[str, ...]:
-    """The codes a study at ``level`` runs: GFN2-xTB (tblite) at every level (screen, geometries or
-    pre-relaxations), PySCF and SciPy for hf/dft, Libxc for dft, dftd3 with a dispersion correction."""
+    """The codes a study at ``level`` runs, in the order the text names them: GFN2-xTB (tblite) at every level
+    (screen, geometries or pre-relaxations), PySCF and SciPy for hf/dft, Libxc for dft, dftd3 with a
+    dispersion correction."""
     used = ["fourfold", "tblite", "geometric"]
     if level.method in ("hf", "dft"):
         used.append("pyscf")
@@ -343,22 +346,25 @@ def _elements(study) -> list[tuple[str, int]]:
     return [(s, atomic_numbers[s]) for s in dict.fromkeys(symbols)]
 
 
-def _join(items: list[str], word: str = "and") -> str:
-    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + f" {word} " + items[-1]
+def _join(items: list[str]) -> str:
+    """'a', 'a and b', 'a, b and c'."""
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
 
 
-def _parts_join(groups: list[list], word: str = "and") -> list:
+def _parts_join(groups: list[list]) -> list:
+    """Lists of text parts joined as _join joins words."""
     out = []
     for index, group in enumerate(groups):
         if index:
-            out.append(f" {word} " if index == len(groups) - 1 else ", ")
+            out.append(" and " if index == len(groups) - 1 else ", ")
         out += group
     return out
 
 
 @dataclass
 class _Writer:
-    """Collects the text parts and any entries made on the way (functionals Libxc cites, parameter papers)."""
+    """The versions the text names, and the BibTeX entries made on the way (references Libxc gives for a
+    functional the bundled file lacks, a D3(BJ) parameter paper it lacks)."""
 
     versions: dict
     made: dict = field(default_factory=dict)
