@@ -83,6 +83,11 @@ def solvent_epsilon(name: str) -> float:
     return float(_solvent_table()[0][canonical_solvent(name)]["epsilon"])
 
 
+def solvent_source(name: str) -> str:
+    """Key of the source of a solvent's dielectric constant in data/solvents.toml (e.g. ``"mnsol"``)."""
+    return str(_solvent_table()[0][canonical_solvent(name)]["source"])
+
+
 @dataclass(frozen=True)
 class Level:
     """One level of theory. Text fields are stored lower case; see the module docstring for presets.

@@ -1,7 +1,8 @@
 """A study folder's report, written from its store: tables/, figures/ and structures/.
 
     tables/      summary, deltas, states, ligand_field, path (.csv, tidy); report.md; one .tex per table and a
-                 report.tex that inputs them all; report.json
+                 report.tex that inputs them all; report.json; methods.md and methods.tex (with the md and tex formats)
+                 and references.bib (fourfold.report.methods)
     figures/     ladder_<complex>, d_levels_<complex>, path_<complex> (with path points), parity; each as .pdf,
                  .svg and 300 dpi .png
     structures/  the final structure of every finished state as extended XYZ (energy, 2S, arrangement, … in
@@ -120,6 +121,10 @@ def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS) ->
 
     safety = cautions_markdown([e.complex for e in study.complexes], heading="## Safety")
     report.tables = write_tables(comparison, folder / "tables", unit, formats, safety)
+    from .methods import methods_files, study_versions
+
+    methods = methods_files(study, study_versions(folder), comparison, safety, formats)
+    report.tables += [_write_text(folder / "tables" / name, text) for name, text in methods.items()]
     report.figures = write_figures(comparison, folder / "figures", unit)
     report.structures = write_structures(comparison, results, folder / "structures", unit)
     return report
