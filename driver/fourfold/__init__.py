@@ -1,3 +1,3 @@
 """fourfold: tetrahedral or square planar, and in which spin state."""
 
-__version__ = "0.1.0"
+__version__ = "0.2.0"
