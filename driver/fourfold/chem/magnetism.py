@@ -8,6 +8,7 @@ term, or one mixed with a near excited term by spin–orbit coupling, measure ab
 from __future__ import annotations
 
 import math
+import numbers
 from dataclasses import dataclass
 
 from ..errors import InputError
@@ -15,9 +16,9 @@ from ..errors import InputError
 
 def spin_only_moment(spin2s: int) -> float:
     """Spin-only effective moment in Bohr magnetons for 2S unpaired electrons: √(n(n+2)), n = 2S."""
-    if isinstance(spin2s, bool) or not isinstance(spin2s, int) or spin2s < 0:
+    if isinstance(spin2s, bool) or not isinstance(spin2s, numbers.Integral) or spin2s < 0:
         raise InputError(f"2S must be a whole number of unpaired electrons (0, 1, 2, ...), got {spin2s!r}")
-    return math.sqrt(spin2s * (spin2s + 2))
+    return math.sqrt(int(spin2s) * (int(spin2s) + 2))
 
 
 @dataclass(frozen=True)
