@@ -5,7 +5,10 @@ proper rotations (H2O 2, NH3 3, CH4 and T-4 MX4 12, SP-4 MX4 8; linear: 2 with a
 else 1). It is found here without naming the point group: every proper rotation about the centre of mass
 maps two chosen off-centre, non-collinear atoms a, b onto atoms a', b' of the same elements at the same
 distances, and is fixed by those two pairs; each candidate is kept when it maps every atom within
-``tolerance_angstrom`` of an atom of the same element.
+``tolerance_angstrom`` of an atom of the same element. Near the tolerance, noise can pass some rotations of a
+group and fail others, so the rotations found are closed under composition (as the atom permutations they induce, which compose
+exactly) and every member of the closure must be a proper rotation within twice the tolerance; when one
+is not, the search runs again at half the tolerance. The answer is therefore always the order of a group.
 """
 
 from __future__ import annotations
@@ -14,10 +17,12 @@ import numpy as np
 
 from ..errors import InputError
 
-# A relaxed structure is symmetric only to its convergence: about 0.01 Å here for GFN2-xTB structures
-# relaxed to geomeTRIC's default criteria. 0.05 Å still tells a D2d-flattened tetrahedron with trans
-# angles above ~112° from a regular one (fourfold default).
+# A relaxed structure is symmetric only to its convergence. Measured on GFN2-xTB free relaxations with
+# geomeTRIC's default criteria: Ni(CO)4 (Td) gives σ 1 at 0.01 Å and 12 from 0.02 Å; after tight criteria
+# 12 already at 0.005 Å. Tighter than 0.05 Å misses the symmetry of default-converged structures; a real
+# distortion (the C2v T-4 [NiCl4]2- triplet, bonds 2.20/2.27 Å) stays visible up to 0.1 Å (fourfold default).
 SYMMETRY_TOLERANCE_ANGSTROM = 0.05
+_LARGEST_GROUP = 60  # the icosahedral rotation group; anything larger is a failed closure
 
 
 def _centred(atoms) -> np.ndarray:
@@ -36,10 +41,15 @@ def is_linear(atoms, tolerance_angstrom: float = SYMMETRY_TOLERANCE_ANGSTROM) ->
     return bool(np.linalg.norm(off_axis, axis=1).max() < tolerance_angstrom)
 
 
-def _maps_onto_itself(rotated: np.ndarray, positions: np.ndarray, numbers: np.ndarray, tolerance: float) -> bool:
+def _image(rotated: np.ndarray, positions: np.ndarray, numbers: np.ndarray,
+           tolerance: float) -> tuple[int, ...] | None:
+    """The atom permutation a rotation induces (atom i lands on atom p[i]), or None if it is no symmetry."""
     distances = np.linalg.norm(rotated[:, None, :] - positions[None, :, :], axis=2)
     distances[numbers[:, None] != numbers[None, :]] = np.inf
-    return bool((distances.min(axis=1) < tolerance).all())
+    permutation = distances.argmin(axis=1)
+    if (distances.min(axis=1) >= tolerance).any() or len(set(permutation)) != len(permutation):
+        return None
+    return tuple(int(j) for j in permutation)
 
 
 def _rotation_between(frame_from: np.ndarray, frame_to: np.ndarray) -> np.ndarray:
@@ -54,35 +64,65 @@ def _frame(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.array([a, b, cross / np.linalg.norm(cross) * np.linalg.norm(a)])
 
 
-def proper_rotations(atoms, tolerance_angstrom: float = SYMMETRY_TOLERANCE_ANGSTROM) -> list[np.ndarray]:
-    """The distinct proper rotations (3×3, about the centre of mass) that map a non-linear structure onto itself."""
-    positions = _centred(atoms)
-    numbers = atoms.get_atomic_numbers()
+def _candidate_permutations(positions: np.ndarray, numbers: np.ndarray, tolerance: float) -> set[tuple[int, ...]]:
+    """Permutations induced by the proper rotations that carry two reference atoms a, b onto same-element atoms."""
     radii = np.linalg.norm(positions, axis=1)
-    off_centre = np.flatnonzero(radii > tolerance_angstrom)
+    off_centre = np.flatnonzero(radii > tolerance)
     # The rarest element first: fewest candidate images a', b'.
     counts = {z: int((numbers[off_centre] == z).sum()) for z in set(numbers[off_centre])}
     order = sorted(off_centre, key=lambda i: (counts[numbers[i]], i))
     a = order[0]
-    b = next((i for i in order[1:] if np.linalg.norm(np.cross(positions[a], positions[i]))
-              > tolerance_angstrom * radii[i]), None)
+    b = next((i for i in order[1:] if np.linalg.norm(np.cross(positions[a], positions[i])) > tolerance * radii[i]),
+             None)
     if b is None:
         raise InputError("the structure is linear: its symmetry number follows from inversion, not rotations")
     frame = _frame(positions[a], positions[b])
     ab = np.linalg.norm(positions[a] - positions[b])
-    candidates_a = [i for i in off_centre if numbers[i] == numbers[a] and abs(radii[i] - radii[a]) < tolerance_angstrom]
-    candidates_b = [i for i in off_centre if numbers[i] == numbers[b] and abs(radii[i] - radii[b]) < tolerance_angstrom]
-    found: list[np.ndarray] = []
-    for image_a in candidates_a:
-        for image_b in candidates_b:
-            if image_b == image_a or abs(np.linalg.norm(positions[image_a] - positions[image_b]) - ab) > 2 * tolerance_angstrom:
+    images_a = [i for i in off_centre if numbers[i] == numbers[a] and abs(radii[i] - radii[a]) < tolerance]
+    images_b = [i for i in off_centre if numbers[i] == numbers[b] and abs(radii[i] - radii[b]) < tolerance]
+    found = set()
+    for image_a in images_a:
+        for image_b in images_b:
+            if image_b == image_a or abs(np.linalg.norm(positions[image_a] - positions[image_b]) - ab) > 2 * tolerance:
                 continue
             rotation = _rotation_between(frame, _frame(positions[image_a], positions[image_b]))
-            if any(np.abs(rotation - known).max() < 1e-3 for known in found):
-                continue
-            if _maps_onto_itself(positions @ rotation.T, positions, numbers, tolerance_angstrom):
-                found.append(rotation)
+            permutation = _image(positions @ rotation.T, positions, numbers, tolerance)
+            if permutation is not None:
+                found.add(permutation)
     return found
+
+
+def _closure(permutations: set[tuple[int, ...]]) -> set[tuple[int, ...]]:
+    """The group the permutations generate (composition is exact, unlike products of noisy matrices)."""
+    group = set(permutations)
+    while len(group) <= _LARGEST_GROUP:
+        products = {tuple(p[j] for j in q) for p in group for q in group} - group
+        if not products:
+            break
+        group |= products
+    return group
+
+
+def _fits(permutation: tuple[int, ...], positions: np.ndarray, tolerance: float) -> bool:
+    """Whether one proper rotation carries every atom i within ``tolerance`` of atom permutation[i]."""
+    target = positions[list(permutation)]
+    rotation = _rotation_between(positions, target)
+    return bool(np.linalg.norm(positions @ rotation.T - target, axis=1).max() < tolerance)
+
+
+def rotation_permutations(atoms, tolerance_angstrom: float = SYMMETRY_TOLERANCE_ANGSTROM) -> set[tuple[int, ...]]:
+    """The proper rotations that map a non-linear structure onto itself, as the atom permutations they induce.
+
+    For a non-linear structure each rotation induces a different permutation, so this set's size is σ.
+    """
+    positions = _centred(atoms)
+    numbers = atoms.get_atomic_numbers()
+    tolerance = float(tolerance_angstrom)
+    while True:
+        group = _closure(_candidate_permutations(positions, numbers, tolerance))
+        if len(group) <= _LARGEST_GROUP and all(_fits(p, positions, 2 * tolerance) for p in group):
+            return group
+        tolerance /= 2
 
 
 def symmetry_number(atoms, tolerance_angstrom: float = SYMMETRY_TOLERANCE_ANGSTROM) -> int:
@@ -93,6 +133,6 @@ def symmetry_number(atoms, tolerance_angstrom: float = SYMMETRY_TOLERANCE_ANGSTR
         return 1
     if is_linear(atoms, tolerance_angstrom):
         positions = _centred(atoms)
-        inverted = _maps_onto_itself(-positions, positions, atoms.get_atomic_numbers(), tolerance_angstrom)
+        inverted = _image(-positions, positions, atoms.get_atomic_numbers(), tolerance_angstrom) is not None
         return 2 if inverted else 1
-    return len(proper_rotations(atoms, tolerance_angstrom))
+    return len(rotation_permutations(atoms, tolerance_angstrom))
