@@ -5,10 +5,11 @@ proper rotations (H2O 2, NH3 3, CH4 and T-4 MX4 12, SP-4 MX4 8; linear: 2 with a
 else 1). It is found here without naming the point group: every proper rotation about the centre of mass
 maps two chosen off-centre, non-collinear atoms a, b onto atoms a', b' of the same elements at the same
 distances, and is fixed by those two pairs; each candidate is kept when it maps every atom within
-``tolerance_angstrom`` of an atom of the same element. Near the tolerance, noise can pass some rotations of a
-group and fail others, so the rotations found are closed under composition (as the atom permutations they induce, which compose
-exactly) and every member of the closure must be a proper rotation within twice the tolerance; when one
-is not, the search runs again at half the tolerance. The answer is therefore always the order of a group.
+``tolerance_angstrom`` of an atom of the same element. Near the tolerance, noise can pass some rotations of
+a group and fail others, so the rotations found are closed under composition (as the atom permutations
+they induce, which compose exactly) and every member of the closure must be a proper rotation within twice
+the tolerance; when one is not, the search runs again at half the tolerance. The answer is therefore
+always the order of a group.
 """
 
 from __future__ import annotations
