@@ -22,7 +22,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from ..geometry.symmetry import is_linear
 from ..units import BOHR_ANGSTROM, wavenumber_cm_from_eigenvalue
 
 Potential = Callable[[np.ndarray], tuple[float, np.ndarray]]
