@@ -28,11 +28,11 @@ Potential = Callable[[np.ndarray], tuple[float, np.ndarray]]
 
 # Central-difference step. The second derivative's error grows as step² (anharmonicity), the gradients'
 # noise as 1/step. Measured with GFN2-xTB (tight SCC): 0.0025, 0.005 and 0.01 Å give H2O frequencies within
-# 0.5 cm⁻¹ and C2v T-4 [NiCl4]2- triplet ones within 0.2 cm⁻¹ of each other; 0.02 Å moves the H2O bend by 3.5.
+# 0.9 cm⁻¹ and C2v T-4 [NiCl4]2- triplet ones within 0.2 cm⁻¹ of each other; 0.02 Å moves the H2O bend by 3.5.
 STEP_ANGSTROM = 0.005
 # tblite SCC accuracy for Hessian gradients. Its default 1.0 (tuned for relaxations) moves soft modes of
 # [NiCl4]2- by up to 2 cm⁻¹ and the H2O stretches by 0.7; 0.1 and 0.01 agree within 0.1 cm⁻¹ (measured);
-# 0.01 costs about 1.3× the gradients of 1.0.
+# 0.01 costs 1.4–1.8× the CPU of 1.0 for these gradients (under a second for [NiCl4]2-).
 XTB_HESSIAN_ACCURACY = 0.01
 # A free minimum whose lowest mode is imaginary by more than this is flagged. 20i cm⁻¹ is the usual
 # cut: smaller imaginary values of soft modes (methyl rotations, ligand librations) come from the
