@@ -4,9 +4,14 @@ import numpy as np
 import pytest
 from ase import Atoms
 
+from fourfold.chem.complex import complex_from_formula
+from fourfold.compute.hessian import harmonic_analysis, xtb_hessian
+from fourfold.compute.relax import relax
 from fourfold.compute.thermo import (free_rotor_entropy_j_mol_k, harmonic_entropy_j_mol_k, qrrho_entropy_j_mol_k,
                                      qrrho_weight, thermochemistry)
+from fourfold.compute.xtb_engine import XtbPotential
 from fourfold.errors import InputError
+from fourfold.geometry.builder import build
 from fourfold.units import (ATOMIC_MASS_KG, HARTREE_EV, HARTREE_KJ_MOL, convert_energy,
                             hartree_per_kelvin_to_j_mol_k)
 
@@ -112,3 +117,23 @@ def test_imaginary_modes_counted_and_bad_input_refused():
         thermochemistry(atoms, [0.0, 3657.0, 3756.0], 0)
     with pytest.raises(InputError, match="temperature and pressure"):
         thermochemistry(atoms, [1595.0, 3657.0, 3756.0], 0, temperature_k=0.0)
+
+
+@pytest.mark.slow
+def test_tetrahedral_phosphine_complex_has_the_larger_entropy():
+    # The planar ⇌ tetrahedral equilibria of NiX2(PR3)2 in solution have ΔS° > 0 towards the tetrahedral
+    # (triplet) form, which entropy favours (L. Que, L. H. Pignolet, Inorg. Chem. 1973, 12, 156; from memory
+    # for the sign). Checked at GFN2-xTB on NiCl2(PMe3)2: T-4 triplet against the trans SP-4 singlet, both
+    # relaxed freely to tight criteria (measured here: ΔS ≈ +35 J/(mol K), R ln 3 = 9.1 of it from the spin).
+    cx = complex_from_formula("[NiCl2(PMe3)2]")
+    entropy = {}
+    for arrangement, isomer, spin2s in (("T-4", None, 2), ("SP-4", "trans", 0)):
+        start = build(cx, arrangement, isomer)
+        potential = XtbPotential(start.get_chemical_symbols(), cx.charge, spin2s)
+        outcome = relax(start, potential, "free", arrangement, convergence="tight", max_steps=300)
+        assert outcome.converged
+        vibrations = harmonic_analysis(outcome.atoms, xtb_hessian(outcome.atoms, cx.charge, spin2s))
+        result = thermochemistry(outcome.atoms, vibrations.frequencies_cm, spin2s, outcome.energy_hartree)
+        assert result.n_imaginary == 0
+        entropy[arrangement] = hartree_per_kelvin_to_j_mol_k(result.entropy_hartree_per_k)
+    assert entropy["T-4"] - entropy["SP-4"] > 0.0
