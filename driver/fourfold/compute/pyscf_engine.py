@@ -1,4 +1,4 @@
-"""PySCF engine: Mole building (with ECPs), the SCF ladder, singlet stability, D3(BJ), C-PCM, gradients.
+"""PySCF engine: Mole building (with ECPs), the SCF ladder, singlet stability, D3(BJ), C-PCM, gradients, Hessians.
 
 Inputs are an ``ase.Atoms`` (positions in Å), the total charge and 2S (PySCF's ``mol.spin``) and a
 ``Level``. Results are plain data (``ScfResult``) so a worker process can hand them to the driver.
