@@ -144,3 +144,16 @@ def test_imaginary_threshold_and_bad_input():
         hessian_from_gradients([np.zeros((2, 3))] * 5, STEP_ANGSTROM)
     with pytest.raises(InputError, match="Hessian for 3 atoms"):
         harmonic_analysis(molecule("H2O"), np.zeros((6, 6)))
+
+
+def test_displacements_are_separate_jobs_in_assembly_order():
+    # 6N displaced structures with unique labels (job keys), each moving one coordinate by ± one step
+    # (central differences; common practice, no source).
+    atoms = molecule("H2O")
+    moves = displacements(atoms)
+    assert len(moves) == 18 and len({move.label for move in moves}) == 18
+    assert [move.label for move in moves[:3]] == ["0x+", "0x-", "0y+"]
+    for move in moves:
+        shift = move.positions_angstrom - atoms.get_positions()
+        assert np.count_nonzero(shift) == 1
+        assert shift[move.atom, move.axis] == pytest.approx(move.sign * STEP_ANGSTROM)
