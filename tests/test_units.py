@@ -25,3 +25,17 @@ def test_derived_conversions():
 def test_unknown_unit_is_an_input_error():
     with pytest.raises(InputError, match="unknown energy unit 'furlong'"):
         units.convert_energy(1.0, "furlong", "kj")
+
+
+def test_thermochemistry_constants_codata_2018():
+    # R = k·N_A = 8.314 462 618... J/(mol K) exact in the 2019 SI; 1 Eh = 3.157 750 248 0407e5 K
+    # (CODATA 2018: Tiesinga, Mohr, Newell, Taylor, Rev. Mod. Phys. 93, 025010, 2021).
+    assert units.GAS_CONSTANT_J_PER_MOL_K == pytest.approx(8.314462618, rel=1e-10)
+    assert units.HARTREE_KELVIN == pytest.approx(3.1577502480407e5, rel=1e-10)
+    assert units.hartree_per_kelvin_to_j_mol_k(1.0 / units.HARTREE_KELVIN) == pytest.approx(8.314462618, rel=1e-9)
+
+
+def test_hessian_eigenvalue_to_wavenumber():
+    # 1 Eh/(bohr² amu) is 5140.487 cm⁻¹: √(Eh/(a0² u))/(2πc) from the CODATA 2018 values (a derivation).
+    assert units.wavenumber_cm_from_eigenvalue(1.0) == pytest.approx(5140.487, rel=1e-6)
+    assert units.wavenumber_cm_from_eigenvalue(-4.0) == pytest.approx(-2 * 5140.487, rel=1e-6)

@@ -16,6 +16,15 @@ AVOGADRO_PER_MOL = 6.02214076e23
 BOHR_ANGSTROM = 0.529177210903
 CAL_JOULE = 4.184  # thermochemical calorie
 
+# Exact SI defining constants and the CODATA 2018 atomic mass constant (for frequencies and thermochemistry).
+SPEED_OF_LIGHT_M_PER_S = 299792458.0
+PLANCK_JOULE_SECOND = 6.62607015e-34
+BOLTZMANN_JOULE_PER_K = 1.380649e-23
+ATOMIC_MASS_KG = 1.66053906660e-27
+BAR_PASCAL = 1.0e5
+GAS_CONSTANT_J_PER_MOL_K = BOLTZMANN_JOULE_PER_K * AVOGADRO_PER_MOL
+HARTREE_KELVIN = HARTREE_JOULE / BOLTZMANN_JOULE_PER_K
+
 HARTREE_KJ_MOL = HARTREE_JOULE * AVOGADRO_PER_MOL / 1000.0
 HARTREE_KCAL_MOL = HARTREE_KJ_MOL / CAL_JOULE
 
@@ -101,6 +110,23 @@ def cm_to_kj_mol(energy_cm):
 
 def kj_mol_to_cm(energy_kj_mol):
     return energy_kj_mol * (HARTREE_CM / HARTREE_KJ_MOL)
+
+
+def hartree_per_kelvin_to_j_mol_k(entropy_hartree_per_k):
+    """Entropy per molecule in Eh/K to J/(mol K)."""
+    return entropy_hartree_per_k * HARTREE_JOULE * AVOGADRO_PER_MOL
+
+
+def wavenumber_cm_from_eigenvalue(eigenvalue_hartree_per_bohr2_amu):
+    """Harmonic wavenumber (cm⁻¹) of a mass-weighted Hessian eigenvalue in Eh/(bohr² amu).
+
+    ν̃ = √λ / (2π c); a negative eigenvalue gives a negative number (an imaginary frequency).
+    """
+    import numpy as np
+
+    scale_per_second = np.sqrt(HARTREE_JOULE / ATOMIC_MASS_KG) / (BOHR_ANGSTROM * 1e-10)
+    value = np.asarray(eigenvalue_hartree_per_bohr2_amu, dtype=float)
+    return np.sign(value) * np.sqrt(np.abs(value)) * scale_per_second / (2.0 * np.pi * SPEED_OF_LIGHT_M_PER_S * 100.0)
 
 
 def bohr_to_angstrom(distance_bohr):

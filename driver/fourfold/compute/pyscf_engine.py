@@ -1,4 +1,4 @@
-"""PySCF engine: Mole building (with ECPs), the SCF ladder, singlet stability, D3(BJ), C-PCM, gradients.
+"""PySCF engine: Mole building (with ECPs), the SCF ladder, singlet stability, D3(BJ), C-PCM, gradients, Hessians.
 
 Inputs are an ``ase.Atoms`` (positions in Å), the total charge and 2S (PySCF's ``mol.spin``) and a
 ``Level``. Results are plain data (``ScfResult``) so a worker process can hand them to the driver.
@@ -644,3 +644,74 @@ class PyscfPotential:
         self.last = result
         self.results.append(result)
         return energy, gradient
+
+
+# --------------------------------------------------------------------------------------- Hessians
+
+DISPERSION_STEP_BOHR = 1e-4  # central differences of the analytic D3(BJ) gradient (smooth, cheap)
+
+
+def analytic_hessian_problem(level: Level) -> str | None:
+    """Why PySCF's analytic Hessian cannot serve ``level`` (None when it can).
+
+    Read in PySCF 2.14's hessian modules: RHF/UHF and RKS/UKS with LDA, GGA, meta-GGA and hybrid
+    functionals, with density fitting, ECPs and C-PCM are covered; non-local (VV10-type) functionals are
+    not. D3(BJ) is not PySCF's (it comes from the dftd3 package) and is added by ``dispersion_hessian``.
+    """
+    if level.method not in ("hf", "dft"):
+        return f"level '{level.name}' is a {level.method} level, not a PySCF one"
+    if level.method == "dft":
+        from pyscf.dft import libxc
+
+        if libxc.is_nlc(level.functional):
+            return f"PySCF has no analytic Hessian for the non-local functional '{level.functional}'"
+    return None
+
+
+def dispersion_hessian(mol, level: Level, step_bohr: float = DISPERSION_STEP_BOHR) -> np.ndarray:
+    """D3(BJ) Hessian (Eh/bohr², (3N, 3N)) by central differences of the dftd3 gradient; zeros without it."""
+    size = 3 * mol.natm
+    hessian = np.zeros((size, size))
+    if level.dispersion is None:
+        return hessian
+    coords_bohr = mol.atom_coords()
+    for column in range(size):
+        atom, axis = divmod(column, 3)
+        gradients = []
+        for sign in (1.0, -1.0):
+            moved = coords_bohr.copy()
+            moved[atom, axis] += sign * step_bohr
+            gradients.append(dispersion_correction(mol.set_geom_(moved, unit="Bohr", inplace=False), level)[1])
+        hessian[:, column] = (gradients[0] - gradients[1]).ravel() / (2.0 * step_bohr)
+    return 0.5 * (hessian + hessian.T)
+
+
+def energy_hessian(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=None,
+                   threads: int = 1, form: str | None = None) -> tuple[float, np.ndarray, ScfResult]:
+    """Energy (Eh), analytic Hessian (Eh/bohr², (3N, 3N), atom-major x, y, z) and the ScfResult.
+
+    The Hessian is PySCF's analytic one of the converged SCF (with C-PCM and density fitting as in the
+    level) plus the D3(BJ) part from ``dispersion_hessian``. InputError when PySCF cannot do it for this
+    level (``analytic_hessian_problem``; use finite differences of gradients then); NotConverged (with
+    ``.result``) when the SCF ladder fails.
+    """
+    problem = analytic_hessian_problem(level)
+    if problem:
+        raise InputError(f"{problem}: use finite differences of gradients (fourfold.compute.hessian)")
+    started = time.perf_counter()
+    with _log_stream(log_path) as stream, _threads(threads):
+        run, mol, restricted, dispersion, notes, extra = _calculate(
+            atoms, charge, spin2s, level, guess, stream, None, None, form)
+        result = _result(run, mol, spin2s, restricted, dispersion, started, log_path, notes, extra)
+        if not result.converged:
+            error = NotConverged(result.reason)
+            error.result = result
+            raise error
+        # A second-order (newton) SCF object has no Hessian of its own: back to the plain mean field.
+        mf = run.mf.undo_soscf() if hasattr(run.mf, "undo_soscf") else run.mf
+        solver = mf.Hessian()
+        solver.verbose = mol.verbose
+        per_atom = np.asarray(solver.kernel())  # (N, N, 3, 3): d²E / dx_ia dx_jb
+        size = 3 * mol.natm
+        hessian = per_atom.transpose(0, 2, 1, 3).reshape(size, size) + dispersion_hessian(mol, level)
+    return result.energy_hartree, 0.5 * (hessian + hessian.T), result
