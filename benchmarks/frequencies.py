@@ -19,7 +19,6 @@ import sys  # noqa: E402
 import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
 
 from fourfold.chem.complex import complex_from_formula  # noqa: E402
 from fourfold.compute.hessian import harmonic_analysis, imaginary_modes, xtb_hessian  # noqa: E402
