@@ -15,9 +15,7 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[_name] = "1"
 
 import argparse  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
-from pathlib import Path  # noqa: E402
 
 
 from fourfold.chem.complex import complex_from_formula  # noqa: E402

@@ -166,6 +166,8 @@ _RUN_OPTIONS = [
                  help="Per-job time limit in seconds (default: recipe [run] timeout_s, else 3600)."),
     click.option("--quiet", is_flag=True, help="No progress bar (for cron or batch systems)."),
     click.option("--json", "as_json", is_flag=True, help="Print the comparison as JSON."),
+    click.option("--temperature", "temperature_k", type=click.FloatRange(min=0, min_open=True), default=None,
+                 help="Temperature of the free energies in K (default: the recipe's temperature_k, else 298.15)."),
 ]
 
 
@@ -189,8 +191,8 @@ def _with_run_options(function):
                    "instead of the recipe's.")
 @click.option("--store", "store_url", metavar="postgresql://USER@HOST:PORT/DB",
               help="Keep the results in PostgreSQL instead of results.db in the study folder (extra: postgres).")
-def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, scheduler,
-        cluster_kind, cluster_config, store_url):
+def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, temperature_k,
+        scheduler, cluster_kind, cluster_config, store_url):
     """Run the study in RECIPE (a .toml file), or every state of one --formula; then print the comparison.
 
     Rerunning the same command resumes: finished jobs are never recomputed."""
@@ -204,11 +206,18 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
         raise InputError("give either a RECIPE file or --formula FORMULA (with --level), not both or neither")
     check_store_url(store_url)
     study = load_recipe(recipe) if recipe else recipe_for_formula(formula, level)
+    study = _at_temperature(study, temperature_k)
     default_name = Path(recipe).stem if recipe else f"{formula_slug(study.complexes[0].complex.formula)}_{level}"
     pool = _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config)
     _run_and_print(study, out_dir or Path("outputs") / default_name,
                    dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s,
                         quiet=quiet, store_url=store_url, pool_factory=pool), as_json, single=bool(formula))
+
+
+def _at_temperature(study, temperature_k):
+    from dataclasses import replace
+
+    return study if temperature_k is None else replace(study, temperature_k=float(temperature_k))
 
 
 def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
@@ -234,7 +243,7 @@ def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
 @click.option("--level", default=None, help="Run the demo at another level (e.g. screen: the whole pipeline in "
                                            "minutes, xTB energies only). Default: the recipe's quick.")
 @_with_run_options
-def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json):
+def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, temperature_k):
     """Run the bundled demo study (four nickel(II) complexes at the quick level) into outputs/demo."""
     from importlib import resources
     from pathlib import Path
@@ -242,7 +251,7 @@ def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_js
     from .study.recipe import parse_recipe
 
     text = resources.files("fourfold").joinpath("recipes/demo.toml").read_text(encoding="utf-8")
-    study = parse_recipe(text, "demo.toml")
+    study = _at_temperature(parse_recipe(text, "demo.toml"), temperature_k)
     if level:
         study = study.with_level(level)  # the folder's recipe.toml is written from the study: it says what ran
         out_dir = out_dir or Path("outputs") / f"demo-{study.level.name}"
@@ -262,8 +271,10 @@ _STORE_OPTION = click.option("--store", "store_url", metavar="postgresql://USER@
               show_default=True, help="Energy unit of the tables and figures (kJ/mol, kcal/mol, eV, cm-1).")
 @click.option("--format", "formats", multiple=True, type=click.Choice(("csv", "md", "tex", "json")),
               help="Table format to write (repeatable; default all). Figures and structures are always written.")
+@click.option("--temperature", "temperature_k", type=click.FloatRange(min=0, min_open=True), default=None,
+              help="Temperature of the free energies in K (default: the one the study ran with).")
 @_STORE_OPTION
-def report(folder, unit, formats, store_url):
+def report(folder, unit, formats, temperature_k, store_url):
     """Tables, figures and extended XYZ structures of a study FOLDER, from its store; prints the summary.
 
     Writes FOLDER/tables, FOLDER/figures (PDF, SVG, 300 dpi PNG) and FOLDER/structures."""
@@ -271,7 +282,8 @@ def report(folder, unit, formats, store_url):
     from .report.text import report_text
     from .study.recipe import load_folder_study
 
-    written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"))
+    written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"),
+                            temperature_k=temperature_k)
     _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     click.echo(report_text(written), nl=False)
 

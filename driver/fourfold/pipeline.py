@@ -93,9 +93,14 @@ def run_pipeline(study, options: RunOptions) -> Outcome:
     return Outcome(summary, report)
 
 
-def report_folder(folder, store_url: str | None = None, unit: str = "kj", formats=FORMATS) -> Report:
-    """Write the report of a study folder again (another unit, another store) without running anything."""
+def report_folder(folder, store_url: str | None = None, unit: str = "kj", formats=FORMATS,
+                  temperature_k: float | None = None) -> Report:
+    """Write the report of a study folder again (another unit, store or temperature) without running anything."""
+    from dataclasses import replace
+
     study = load_folder_study(folder)
+    if temperature_k is not None:
+        study = replace(study, temperature_k=float(temperature_k))
     store = open_store(folder, store_url)
     with RunLock(Path(folder)):
         return write_report(folder, study, store, unit, formats)

@@ -91,6 +91,14 @@ def states_table(comparison, unit: str) -> Table:
         _energy_column("estimate_energy", "ΔE est", r"$\Delta E_\mathrm{est}$", unit),
         Column("s2", "⟨S²⟩", r"$\langle S^2\rangle$", "number", 2),
         Column("s2_expected", "S(S+1)", "$S(S+1)$", "number", 2, "data"),
+        Column("mu_eff_spin_only", "μ_eff / μB", r"$\mu_\mathrm{eff}$ / $\mu_\mathrm{B}$", "number", 2, "data"),
+        Column("projected_energy_hartree", "E proj / Eh", "", "number", 6, "data"),
+        Column("n_imaginary", "imaginary modes", "", "number", 0, "data"),
+        Column("frequency_level", "frequencies from", "", where="data"),
+        Column("zpe_hartree", "ZPE / Eh", "", "number", 6, "data"),
+        Column("enthalpy_hartree", "H / Eh", "", "number", 6, "data"),
+        Column("gibbs_hartree", "G / Eh", "", "number", 6, "data"),
+        _energy_column("relative_gibbs", "ΔG", r"$\Delta G$", unit, "data"),
         Column("spin_contaminated", "contaminated", "contam.", "bool", where="data"),
         Column("broken_symmetry", "broken symmetry", "BS", "bool", where="data"),
         Column("tau4", "τ₄", r"$\tau_4$", "number", 2),
@@ -111,6 +119,10 @@ def states_table(comparison, unit: str) -> Table:
                 "relaxation": r.kind, "status": r.status, "converged": r.converged, "energy_hartree": r.energy_hartree,
                 columns[11].key: _in(r.relative_kj_mol, unit), columns[12].key: _in(r.estimate_kj_mol, unit),
                 "s2": r.s2, "s2_expected": r.s2_expected, "spin_contaminated": r.spin_contaminated,
+                "mu_eff_spin_only": r.mu_eff_spin_only, "projected_energy_hartree": r.projected_energy_hartree,
+                "n_imaginary": r.n_imaginary, "frequency_level": r.frequency_level, "zpe_hartree": r.zpe_hartree,
+                "enthalpy_hartree": r.enthalpy_hartree, "gibbs_hartree": r.gibbs_hartree,
+                f"relative_gibbs_{energy_unit(unit).suffix}": _in(r.relative_gibbs_kj_mol, unit),
                 "broken_symmetry": r.broken_symmetry, "tau4": r.tau4, "tau4_prime": r.tau4_prime,
                 "nearest_shape": r.nearest_shape, "engine": r.engine, "level": c.level, "note": _note(r, unit),
                 "warnings": "; ".join(r.warnings), "job_key": r.job_key,
@@ -125,8 +137,12 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
     columns = [Column("state", "state", "state"), Column("spin", "spin", "spin")]
     for kind in kinds:
         columns.append(_energy_column(f"relative_energy_{kind}", f"ΔE {kind}", rf"$\Delta E_\mathrm{{{kind}}}$", unit))
+    has_gibbs = any(r.relative_gibbs_kj_mol is not None for r in c.records)
+    if has_gibbs:
+        columns.append(_energy_column("relative_gibbs_free", "ΔG free", r"$\Delta G_\mathrm{free}$", unit))
     columns += [
         _energy_column("estimate_energy", "ΔE est", r"$\Delta E_\mathrm{est}$", unit),
+        Column("mu_eff", "μ_eff / μB", r"$\mu_\mathrm{eff}$ / $\mu_\mathrm{B}$", "number", 2),
         Column("s2", "⟨S²⟩", r"$\langle S^2\rangle$", "number", 2),
         Column("tau4", f"τ₄ ({shape_kind})", rf"$\tau_4$ ({shape_kind})", "number", 2),
         Column("tau4_prime", f"τ₄′ ({shape_kind})", rf"$\tau_4'$ ({shape_kind})", "number", 2),
@@ -142,12 +158,15 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
         first = by_kind.get("held") or next(iter(by_kind.values()))
         shaped = by_kind.get(shape_kind, first)
         row = {"state": f"{arrangement} {isomer}".strip(), "spin": spin_label(spin2s), "s2": first.s2,
+               "mu_eff": first.mu_eff_spin_only,
                "tau4": shaped.tau4, "tau4_prime": shaped.tau4_prime,
                "nearest_shape": shaped.nearest_shape}
         for kind in kinds:
             r = by_kind.get(kind)
             row[f"relative_energy_{kind}_{energy_unit(unit).suffix}"] = None if r is None else _in(r.relative_kj_mol, unit)
         row[f"estimate_energy_{energy_unit(unit).suffix}"] = _in(first.estimate_kj_mol, unit)
+        if has_gibbs and "free" in by_kind:
+            row[f"relative_gibbs_free_{energy_unit(unit).suffix}"] = _in(by_kind["free"].relative_gibbs_kj_mol, unit)
         row["converged"] = " / ".join(f"{k}: {_yes_no(by_kind[k].converged)}" if len(kinds) > 1
                                       else _yes_no(by_kind[k].converged) for k in kinds if k in by_kind)
         row["note"] = "; ".join(f"{k}: {n}" if len(kinds) > 1 else n
@@ -163,6 +182,15 @@ DIFFERENCE_FLAG_KJ_MOL = 20.0  # computed − estimated ΔE beyond this is flagg
 
 def _signed(value, digits: int) -> str:
     return "—" if value is None else f"{value:+.{digits}f}".replace("-", "−")
+
+
+def _orbital_note(c, record) -> str:
+    from ..chem.complex import complex_from_formula
+    from ..chem.magnetism import orbital_contribution
+
+    cx = complex_from_formula(c.formula)
+    found = orbital_contribution(cx.metal.symbol, cx.oxidation_state, record.ended_as, record.spin2s)
+    return found.note(record.spin2s) if found else ""
 
 
 def ground_words(record) -> str:
@@ -183,6 +211,19 @@ def _verdicts(c, unit: str) -> list[str]:
     same = {None: "", True: " Same ground state.", False: " Different ground states."}[c.agrees()]
     lines = [f"Ground state ({c.basis}{'' if c.complete else ', INCOMPLETE'}): computed {computed}; estimated "
              f"{_state_words(e.arrangement, e.isomer, e.spin2s)}.{same}"]
+    by_gibbs = c.ground_by_gibbs
+    if by_gibbs is not None:
+        differs = g is None or (by_gibbs.ended_as, by_gibbs.spin2s) != (g.ended_as, g.spin2s)
+        lines.append(f"Ground state by G({c.temperature_k:g} K): {ground_words(by_gibbs)}"
+                     + (" — differs from the ground state by E." if differs else ", as by E."))
+    populations = c.populations(c.temperature_k)
+    if populations:
+        lines.append(f"Populations at {c.temperature_k:g} K from ΔG: "
+                     + ", ".join(f"{shape} {share:.0%}" for shape, share in populations.items()) + ".")
+    if g is not None:
+        moment = f"Spin-only μ_eff of the ground state: {g.mu_eff_spin_only:.2f} μB"
+        note = _orbital_note(c, g)
+        lines.append(moment + (f"; {note}" if note else "") + ".")
     lines += [f"Warning: {w}." for w in c.verdict_warnings(unit)]
     calc, est = c.delta_sp_t_kj_mol(), c.estimated_delta_kj_mol()
     ladder = "held" if c.ladder_kind == "held" else "free minima by final shape"

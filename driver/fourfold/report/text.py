@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from ..chem.complex import spin_label
+from ..chem.magnetism import spin_only_moment
 from ..units import cm_to_kj_mol, energy_unit
 from .table import Column, Table, to_text
 from .tables import complex_table, summary_table
@@ -20,13 +21,15 @@ def estimate_table(result) -> Table:
     """The estimate's states, lowest first: occupations and the three energy terms."""
     columns = [Column("state", "state", "state"), Column("spin", "spin", "spin"),
                Column("occupation", "occupation", "occupation"),
+               Column("mu_eff", "μ_eff / μB", "", "number", 2),
                Column("ligand_field_cm-1", "ligand field / cm⁻¹", "", "number", 0),
                Column("pairing_cm-1", "pairing / cm⁻¹", "", "number", 0),
                Column("repulsion_cm-1", "repulsion / cm⁻¹", "", "number", 0),
                Column("energy_cm-1", "E rel / cm⁻¹", "", "number", 0),
                Column("energy_kj_mol", "E rel / kJ mol⁻¹", "", "number", 1)]
     rows = [{"state": _state_name(s.arrangement, s.isomer), "spin": spin_label(s.spin2s),
-             "occupation": _occupation_marks(s.occupation), "ligand_field_cm-1": s.ligand_field_cm,
+             "occupation": _occupation_marks(s.occupation), "mu_eff": spin_only_moment(s.spin2s),
+             "ligand_field_cm-1": s.ligand_field_cm,
              "pairing_cm-1": s.pairing_cm, "repulsion_cm-1": s.repulsion_cm, "energy_cm-1": s.energy_cm,
              "energy_kj_mol": s.energy_kj_mol} for s in sorted(result.states, key=lambda s: s.energy_cm)]
     return Table("estimate", f"Ligand-field estimate for {{formula}}  (d{result.d_electrons})", columns, rows,

@@ -7,9 +7,11 @@ Same inputs give the same key; any change of settings gives a new one. Jobs of d
 same work (the GFN2-xTB relaxation under a `quick` single point is the `screen` result) share a key.
 
 Chains per state and relaxation kind:
-  screen    relax (xTB)
-  quick     relax (xTB) → single-point (DFT)
-  standard  relax-held (xTB, pre-relax) → relax (DFT) → single-point (DFT, larger basis) when asked
+  screen    relax (xTB) [→ frequencies (xTB)]
+  quick     relax (xTB) [→ frequencies (xTB)] → single-point (DFT)
+  standard  relax-held (xTB, pre-relax) → relax (DFT) [→ frequencies (DFT)] → single-point (DFT, larger basis)
+            when asked
+The frequency step (in brackets) follows free relaxations when the study asks for frequencies (the default).
 Path points (recipe `path_points = N`): held relaxations along the D2d path in the same chain as the
 states, so at `standard` they are relaxed at the DFT geometry level and share the states' energy zero.
 """
@@ -29,7 +31,7 @@ from ..geometry.builder import build, build_path_point
 from ..geometry.isomers import isomers
 from ..geometry.polyhedra import TETRAHEDRAL_ANGLE_DEG
 
-TASKS = ("relax-held", "relax-free", "single-point", "path-point")
+TASKS = ("relax-held", "relax-free", "frequencies", "single-point", "path-point")
 _VERSIONED = ("fourfold", "pyscf", "tblite", "geometric")
 
 
@@ -170,21 +172,31 @@ def single_point_engine(level) -> dict:
     return _dft_engine(level, level.single_point_basis or level.basis)
 
 
-def _state_chain(builder: _Builder, level, base: JobSpec, atoms, label: str) -> None:
+def _state_chain(builder: _Builder, level, base: JobSpec, atoms, label: str, frequencies: bool) -> None:
+    """The jobs of one state. A free relaxation is followed by its frequency job (tight relaxation, Hessian,
+    minimum check) when the study asks for frequencies; a single point then runs on that checked minimum."""
     xtb = replace(base, engine=geometry_engine(level))
     relax_task = "path-point" if base.is_path_point else f"relax-{base.kind}"
     start = _rounded_positions(atoms)
+    checked = frequencies and base.kind == "free" and not base.is_path_point
     if level.method == "xtb":
-        builder.add(relax_task, xtb, None, start, True, label)
+        geometry = builder.add(relax_task, xtb, None, start, not checked, label)
+        if checked:
+            builder.add("frequencies", xtb, geometry, None, True, label)
         return
     if level.geometry_from == "xtb":
         geometry = builder.add(relax_task, xtb, None, start, False, label)
+        if checked:
+            geometry = builder.add("frequencies", xtb, geometry, None, False, label)
         builder.add("single-point", replace(base, engine=single_point_engine(level)), geometry, None, True, label)
         return
     pre = builder.add(relax_task if base.kind == "held" else "relax-held", replace(xtb, kind="held"), None, start,
                       False, label)
     has_sp = level.single_point_basis is not None
-    dft = builder.add(relax_task, replace(base, engine=relax_engine(level)), pre, None, not has_sp, label)
+    dft_spec = replace(base, engine=relax_engine(level))
+    dft = builder.add(relax_task, dft_spec, pre, None, not has_sp and not checked, label)
+    if checked:
+        dft = builder.add("frequencies", dft_spec, dft, None, not has_sp, label)
     if has_sp:
         builder.add("single-point", replace(base, engine=single_point_engine(level)), dft, None, True, label)
 
@@ -205,7 +217,7 @@ def expand(study) -> list[Job]:
                     for kind in study.relaxations:
                         base = JobSpec(**common, arrangement=arrangement, isomer=isomer.label, spin2s=spin2s, kind=kind)
                         label = f"{cx.formula} {arrangement} {isomer.label} 2S={spin2s} {kind}".replace("  ", " ")
-                        _state_chain(builder, study.level, base, atoms, label)
+                        _state_chain(builder, study.level, base, atoms, label, study.frequencies)
         if study.path_points and "SP-4" in entry.arrangements:
             for isomer in isomers(names, "SP-4"):
                 for angle in path_angles_deg(study.path_points):
@@ -214,5 +226,5 @@ def expand(study) -> list[Job]:
                         base = JobSpec(**common, arrangement="path", isomer=isomer.label, spin2s=spin2s, kind="held",
                                        trans_angle_deg=round(angle, 6))
                         label = f"{cx.formula} path {angle:.1f}° {isomer.label} 2S={spin2s}".replace("  ", " ")
-                        _state_chain(builder, study.level, base, atoms, label)
+                        _state_chain(builder, study.level, base, atoms, label, study.frequencies)
     return list(builder.jobs.values())

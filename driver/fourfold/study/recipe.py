@@ -10,6 +10,9 @@ solvent = "dichloromethane"          # optional; omit for the gas phase
 arrangements = ["T-4", "SP-4"]       # default: T-4 and SP-4 (with its isomers)
 relaxations = ["held", "free"]       # held, free or both (default both)
 path_points = 0                      # > 1: held relaxations along the D2d path T-4 → SP-4
+frequencies = true                   # free minima get frequencies and the minimum check (default true)
+temperature_k = 298.15               # thermochemistry (default 298.15 K and 1 bar, ideal-gas standard state)
+pressure_bar = 1.0
 
 [estimate]                           # optional ligand-field overrides for every complex
 "Cl.e_sigma" = 4200
@@ -53,7 +56,9 @@ from ..geometry.polyhedra import ARRANGEMENTS
 
 RELAXATION_KINDS = ("held", "free")
 _TOP_KEYS = {"title", "level", "solvent", "arrangements", "relaxations", "path_points", "estimate", "ligands",
-             "complex", "run", "cluster"}
+             "complex", "run", "cluster", "frequencies", "temperature_k", "pressure_bar"}
+DEFAULT_TEMPERATURE_K = 298.15
+DEFAULT_PRESSURE_BAR = 1.0
 _COMPLEX_KEYS = {"formula", "metal", "oxidation_state", "ligands", "charge", "spins", "arrangements", "estimate", "name"}
 _LIGAND_KEYS = {"xyz", "donor_index", "charge", "f", "pi_ratio", "h", "repulsion_cm", "label", "distance_angstrom"}
 _RUN_KEYS = {"workers", "timeout_s", "max_steps", "threads"}
@@ -85,6 +90,9 @@ class Study:
     source_text: str
     cluster: dict = field(default_factory=dict)  # [cluster]: batch jobs for --cluster; not part of any job key
     ligand_tables: dict = field(default_factory=dict)  # the validated [ligands.NAME] tables, as written
+    frequencies: bool = True  # free minima get a frequency job (minimum check, thermochemistry)
+    temperature_k: float = DEFAULT_TEMPERATURE_K  # thermochemistry only: not part of any job key
+    pressure_bar: float = DEFAULT_PRESSURE_BAR
 
     def with_level(self, level) -> Study:
         """The same study at another level (a preset name or a Level)."""
@@ -274,8 +282,15 @@ def parse_recipe(text: str, path: str = "<recipe>") -> Study:
         if _expect(path, f"run.{key}", value, (int, float) if key == "timeout_s" else int, "a positive number") <= 0:
             raise _fail(path, f"run.{key}", f"must be positive, got {value}")
     cluster = cluster_settings(path, data["cluster"]) if "cluster" in data else {}
+    frequencies = _expect(path, "frequencies", data.get("frequencies", True), bool, "true or false")
+    thermo = {}
+    for key, default in (("temperature_k", DEFAULT_TEMPERATURE_K), ("pressure_bar", DEFAULT_PRESSURE_BAR)):
+        value = _expect(path, key, data.get(key, default), (int, float), "a number")
+        if isinstance(value, bool) or not value > 0:
+            raise _fail(path, key, f"must be a positive number, got {value!r}")
+        thermo[key] = float(value)
     return Study(title, level, arrangements, tuple(dict.fromkeys(relaxations)), path_points, tuple(entries), run,
-                 path, text, cluster, dict(data.get("ligands", {})))
+                 path, text, cluster, dict(data.get("ligands", {})), frequencies, **thermo)
 
 
 def load_recipe(path) -> Study:
@@ -323,7 +338,8 @@ def study_to_toml(study: Study) -> str:
     import tomli_w
 
     data = {"title": study.title, "arrangements": list(study.arrangements), "relaxations": list(study.relaxations),
-            "path_points": study.path_points, "level": _toml_level(study.level)}
+            "path_points": study.path_points, "frequencies": study.frequencies, "temperature_k": study.temperature_k,
+            "pressure_bar": study.pressure_bar, "level": _toml_level(study.level)}
     if study.run:
         data["run"] = dict(study.run)
     if study.cluster:

@@ -20,6 +20,7 @@ from dataclasses import asdict, dataclass, field
 from ..units import convert_energy, energy_unit
 
 SPIN_CONTAMINATION_LIMIT = 0.1  # |⟨S²⟩ − S(S+1)| above this is flagged (fourfold default)
+POPULATION_WINDOW_KJ_MOL = 10.0  # T-4/SP-4 populations are given when the forms lie this close (fourfold default)
 START_SPREAD_LIMIT_KJ_MOL = 4.0  # starts of one state further apart than this are shown beside it (fourfold default)
 FREE_MINIMA, HELD_ONLY = "free minima", "held only"
 HELD_ONLY_BLIND_SPOT = ("held relaxations keep the ideal L–M–L angles, so they cannot show a Jahn–Teller "
@@ -68,7 +69,19 @@ class StateRecord:
     spread_kj_mol: float | None = None
     start_won: str | None = None
     occupation_matches: bool | None = None
+    frequencies_cm: list | None = None  # free minima: harmonic frequencies (imaginary negative)
+    n_imaginary: int | None = None
+    frequency_level: str | None = None
+    zpe_hartree: float | None = None
+    enthalpy_hartree: float | None = None
+    entropy_hartree_per_k: float | None = None
+    gibbs_hartree: float | None = None
+    symmetry_number: int | None = None
+    relative_gibbs_kj_mol: float | None = None
+    mu_eff_spin_only: float | None = None  # μB
     warnings: list = field(default_factory=list)
+
+    structure: tuple | None = field(default=None, repr=False)  # (symbols, positions Å) of the final structure
 
     @property
     def name(self) -> str:
@@ -115,6 +128,7 @@ class ComplexComparison:
     estimate: object  # fourfold.field.estimate.Estimate
     level: str
     path_records: list[StateRecord] = field(default_factory=list)  # held relaxations along the D2d path
+    temperature_k: float = 298.15  # of the free energies (the study's)
 
     @property
     def ladder_kind(self) -> str:
@@ -154,6 +168,34 @@ class ComplexComparison:
     def computed_ground(self) -> StateRecord | None:
         ranked = self._ranked()
         return ranked[0] if ranked else None
+
+    @property
+    def ground_by_gibbs(self) -> StateRecord | None:
+        """The verdict's ground state by free energy G(T), where every verdict state has one."""
+        states = self.verdict_records()
+        if not states or any(r.gibbs_hartree is None for r in states):
+            return None
+        return min(states, key=lambda r: r.gibbs_hartree)
+
+    def populations(self, temperature_k: float, window_kj_mol: float = POPULATION_WINDOW_KJ_MOL) -> dict[str, float]:
+        """Boltzmann populations of the T-4 and SP-4 forms (by where their minima ended, all spins) at
+        ``temperature_k`` from G — what a solution measurement sees — when the two lowest forms lie within
+        ``window_kj_mol``; empty otherwise or without free energies."""
+        import math
+
+        from ..units import GAS_CONSTANT_J_PER_MOL_K
+
+        states = [r for r in self.verdict_records() if r.relative_gibbs_kj_mol is not None
+                  and r.ended_as in ("T-4", "SP-4")]
+        lowest = {shape: min((r.relative_gibbs_kj_mol for r in states if r.ended_as == shape), default=None)
+                  for shape in ("T-4", "SP-4")}
+        if None in lowest.values() or abs(lowest["T-4"] - lowest["SP-4"]) > window_kj_mol:
+            return {}
+        rt_kj_mol = GAS_CONSTANT_J_PER_MOL_K * temperature_k / 1000.0
+        weights = {shape: sum(math.exp(-r.relative_gibbs_kj_mol / rt_kj_mol) for r in states if r.ended_as == shape)
+                   for shape in lowest}
+        total = sum(weights.values())
+        return {shape: weight / total for shape, weight in weights.items()}
 
     @property
     def runner_up(self) -> StateRecord | None:
@@ -223,17 +265,25 @@ class Comparison:
     level: str
     complexes: list[ComplexComparison]
     warnings: list[str]
+    temperature_k: float = 298.15
+    pressure_bar: float = 1.0
 
     def as_dict(self) -> dict:
-        out = {"title": self.title, "level": self.level, "warnings": self.warnings, "complexes": []}
+        out = {"title": self.title, "level": self.level, "warnings": self.warnings, "temperature_k": self.temperature_k,
+               "pressure_bar": self.pressure_bar, "complexes": []}
         for c in self.complexes:
-            g = c.computed_ground
+            g, g_by_gibbs = c.computed_ground, c.ground_by_gibbs
             e = c.estimate.ground
             out["complexes"].append({
                 "formula": c.formula, "level": c.level, "d_electrons": c.d_electrons,
-                "states": [{k: v for k, v in asdict(r).items() if k != "warnings"} for r in c.records],
+                "states": [{k: v for k, v in asdict(r).items() if k not in ("warnings", "structure")} for r in c.records],
                 "ground": None if g is None else {"arrangement": g.arrangement, "isomer": g.isomer, "spin2s": g.spin2s,
-                                                  "kind": g.kind, "ended_as": g.ended_as, "tau4": g.tau4},
+                                                  "kind": g.kind, "ended_as": g.ended_as, "tau4": g.tau4,
+                                                  "mu_eff_spin_only": g.mu_eff_spin_only},
+                "ground_by_gibbs": None if g_by_gibbs is None else {
+                    "arrangement": g_by_gibbs.arrangement, "isomer": g_by_gibbs.isomer, "spin2s": g_by_gibbs.spin2s,
+                    "kind": g_by_gibbs.kind, "ended_as": g_by_gibbs.ended_as, "mu_eff_spin_only": g_by_gibbs.mu_eff_spin_only},
+                "populations": c.populations(self.temperature_k),
                 "verdict": {"basis": c.basis, "complete": c.complete,
                             "missing": [{"state": r.name, "kind": r.kind, "spin2s": r.spin2s, "reason": why}
                                         for r, why in c.missing()],
@@ -242,7 +292,7 @@ class Comparison:
                 "agree": c.agrees(),
                 "delta_sp_minus_t_kj_mol": {str(k): v for k, v in c.delta_sp_t_kj_mol().items()},
                 "estimate_delta_sp_minus_t_kj_mol": {str(k): v for k, v in c.estimated_delta_kj_mol().items()},
-                "path": [{k: v for k, v in asdict(r).items() if k != "warnings"} for r in c.path_records],
+                "path": [{k: v for k, v in asdict(r).items() if k not in ("warnings", "structure")} for r in c.path_records],
             })
         return out
 
@@ -260,7 +310,8 @@ def build_comparison(study, results_by_key: dict) -> Comparison:
     for entry in study.complexes:
         cx = entry.complex
         est = estimate(cx, entry.arrangements, entry.estimate_overrides, spins=entry.spins)
-        records = [_record(cx.formula, job, results_by_key.get(job.key), est, warnings)
+        records = [_record(cx.formula, job, results_by_key.get(job.key), est, warnings,
+                           results_by_key.get(job.parent) if job.parent else None)
                    for job in final_jobs if job.spec.formula == cx.formula]
         path_records = [_record(cx.formula, job, results_by_key.get(job.key), None, warnings)
                         for job in path_jobs if job.spec.formula == cx.formula]
@@ -270,10 +321,14 @@ def build_comparison(study, results_by_key: dict) -> Comparison:
             r.relative_kj_mol = convert_energy(r.verdict_energy_hartree - lowest, "hartree", "kj")
             if r.projected_energy_hartree is not None:
                 r.unprojected_relative_kj_mol = convert_energy(r.energy_hartree - lowest, "hartree", "kj")
+        _thermochemistry(records, study.temperature_k, study.pressure_bar)
         _relative_path_energies(path_records, lowest, study.level)
         warnings += _charge_warnings(cx, records, study.level)
-        complexes.append(ComplexComparison(cx.formula, cx.d_electrons, records, est, study.level.name, path_records))
-    return Comparison(study.title, study.level.name, complexes, _unique(warnings + energy_caveats(study.level)))
+        complexes.append(ComplexComparison(cx.formula, cx.d_electrons, records, est, study.level.name, path_records,
+                                           study.temperature_k))
+    caveats = energy_caveats(study.level, any(r.gibbs_hartree is not None for c in complexes for r in c.records))
+    return Comparison(study.title, study.level.name, complexes, _unique(warnings + caveats), study.temperature_k,
+                      study.pressure_bar)
 
 
 def _unique(lines: list[str]) -> list[str]:
@@ -294,11 +349,17 @@ def _charge_warnings(cx, records: list[StateRecord], level) -> list[str]:
     return found
 
 
-def energy_caveats(level) -> list[str]:
+def energy_caveats(level, free_energies: bool = False) -> list[str]:
     """What every report says about the energies it shows."""
     from ..compute.levels import exact_exchange_fraction
 
     found = ["ΔE values are electronic energies: no zero-point, thermal or entropy terms are included."]
+    if free_energies:
+        found.append("ΔG values add ZPE, thermal and entropy terms of the ideal gas (1 bar standard state, rigid "
+                     "rotor with the structure's symmetry number, electronic entropy R ln(2S+1), Grimme's "
+                     "quasi-RRHO entropy below 100 cm⁻¹: S. Grimme, Chem. Eur. J. 2012, 18, 9955) from harmonic "
+                     "frequencies at the level named per state; with a solvent, the continuum enters through the "
+                     "electronic energy only.")
     if level.method == "xtb":
         return found
     fraction = exact_exchange_fraction(level)
@@ -316,18 +377,53 @@ _RESULT_FIELDS = ("energy_hartree", "converged", "reason", "tau4", "tau4_prime",
                   "spread_kj_mol", "start_won", "occupation_matches")
 
 
-def _record(formula: str, job, result: dict | None, est, warnings: list) -> StateRecord:
-    """One job's row; ``est`` (the complex's Estimate) fills estimate_kj_mol, None for path points."""
+_FREQUENCY_FIELDS = ("frequencies_cm", "n_imaginary", "frequency_level")
+
+
+def _thermochemistry(records: list[StateRecord], temperature_k: float, pressure_bar: float) -> None:
+    """ZPE, H, S, G(T) of every state with frequencies, on its verdict energy; G relative to the lowest G."""
+    from ase import Atoms
+
+    from ..compute.thermo import thermochemistry
+    from ..units import BAR_PASCAL
+
+    for r in records:
+        if r.frequencies_cm is None or r.exclusion is not None or r.structure is None:
+            continue
+        found = thermochemistry(Atoms(*r.structure), r.frequencies_cm, r.spin2s, r.verdict_energy_hartree,
+                                temperature_k=temperature_k, pressure_pa=pressure_bar * BAR_PASCAL)
+        r.zpe_hartree, r.enthalpy_hartree = found.zpe_hartree, found.enthalpy_hartree
+        r.entropy_hartree_per_k, r.gibbs_hartree = found.entropy_hartree_per_k, found.gibbs_hartree
+        r.symmetry_number = found.symmetry_number
+    with_g = [r for r in records if r.gibbs_hartree is not None]
+    if with_g:
+        lowest = min(r.gibbs_hartree for r in with_g)
+        for r in with_g:
+            r.relative_gibbs_kj_mol = convert_energy(r.gibbs_hartree - lowest, "hartree", "kj")
+
+
+def _record(formula: str, job, result: dict | None, est, warnings: list, parent: dict | None = None) -> StateRecord:
+    """One job's row; ``est`` (the complex's Estimate) fills estimate_kj_mol, None for path points. A single
+    point takes the frequencies of the checked minimum it was computed on (its parent)."""
+    from ..chem.magnetism import spin_only_moment
+
     s = job.spec
     record = StateRecord(formula, s.arrangement, s.isomer, s.spin2s, s.kind,
                          status="pending" if result is None else result["status"], engine=s.method,
                          job_key=job.key, trans_angle_deg=s.trans_angle_deg)
+    record.mu_eff_spin_only = spin_only_moment(s.spin2s)
     if est is not None:
         record.estimate_kj_mol = est.state(s.arrangement, s.spin2s, s.isomer).energy_kj_mol
     if result is not None:
         for name in _RESULT_FIELDS:
             if result.get(name) is not None:
                 setattr(record, name, result[name])
+        for name in _FREQUENCY_FIELDS:
+            source = result if result.get(name) is not None else (parent or {})
+            if source.get(name) is not None:
+                setattr(record, name, source[name])
+        if result.get("symbols"):
+            record.structure = (result["symbols"], result["positions_angstrom"])
         record.warnings = list(result.get("warnings", []))
         for w in record.warnings:
             if w not in warnings:
