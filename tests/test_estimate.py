@@ -95,11 +95,17 @@ def test_pairing_constant_matches_racah_d2_terms():
 
 
 def test_kepert_repulsion_prefers_tetrahedron():
-    # For equal ligands the 1/r⁶ repulsion is lowest for the tetrahedron (Kepert, Inorganic
-    # Stereochemistry, 1982, from memory): Td 6/(8/3)³ vs SP 4/2³ + 2/2⁶
-    k = np.full(4, 1.0)
-    assert repulsion_energy_cm(unit_vectors("T-4"), k) == pytest.approx(6 / (8 / 3) ** 3)
-    assert repulsion_energy_cm(unit_vectors("SP-4"), k) == pytest.approx(4 / 8 + 2 / 64)
+    # For equal ligands an inverse-power repulsion is lowest for the tetrahedron (Kepert, Inorganic
+    # Stereochemistry, 1982, from memory); here the distance is the angle between bonds in units of the
+    # cone contact angle: Td 6·(θ/109.47°)ⁿ vs SP 4·(θ/90°)ⁿ + 2·(θ/180°)ⁿ
+    cones = np.full(4, 100.0)
+    tetrahedral = np.degrees(np.arccos(-1 / 3))
+    for n in (1, 6, 12):
+        td = repulsion_energy_cm(unit_vectors("T-4"), cones, 1.0, n)
+        sp = repulsion_energy_cm(unit_vectors("SP-4"), cones, 1.0, n)
+        assert td == pytest.approx(6 * (100 / tetrahedral) ** n)
+        assert sp == pytest.approx(4 * (100 / 90) ** n + 2 * (100 / 180) ** n)
+        assert td < sp
 
 
 @pytest.mark.parametrize("formula,arrangement,spin2s", [

@@ -137,3 +137,35 @@ def test_unknown_options_are_input_errors(option):
     arguments = {"kind": "free", "arrangement": "T-4", **option}
     with pytest.raises(InputError):
         relax(nicl4(TETRAHEDRON), screen_potential(2), **arguments)
+
+
+def _bite_and_twist_deg(atoms):
+    """The en chelate's N–Ni–N angle and the angle between the N–Ni–N and Cl–Ni–Cl planes."""
+    p = atoms.get_positions()
+    u = [(p[i] - p[0]) / np.linalg.norm(p[i] - p[0]) for i in (1, 2, 3, 4)]
+    bite = np.degrees(np.arccos(np.clip(u[0] @ u[1], -1, 1)))
+    n1, n2 = np.cross(u[0], u[1]), np.cross(u[2], u[3])
+    twist = np.degrees(np.arccos(np.clip(abs(n1 @ n2) / np.linalg.norm(n1) / np.linalg.norm(n2), 0, 1)))
+    return bite, twist
+
+
+@pytest.mark.parametrize("arrangement, spin2s, twist_deg", [("SP-4", 0, 0.0), ("T-4", 2, 90.0)])
+def test_held_chelate_keeps_the_arrangement_not_the_bite(arrangement, spin2s, twist_deg):
+    # [Ni(en)Cl2]: the chelate and Cl–Ni–Cl planes are one plane in SP-4 and perpendicular in T-4 (the
+    # tetrahedron's opposite edges are perpendicular) [common practice, no source]. The held relaxation keeps
+    # that, but the bite relaxes: it leaves the builder's start value (the fragment's bite at the
+    # covalent-radius Ni–N distance) and does not go to 90° or 109.5°.
+    from fourfold.chem.complex import complex_from_formula
+    from fourfold.geometry.builder import build
+
+    cx = complex_from_formula("[Ni(en)Cl2]")
+    start = build(cx, arrangement)
+    potential = XtbPotential(start.get_chemical_symbols(), charge=0, spin2s=spin2s)
+    result = relax(start, potential, "held", arrangement, max_steps=150)
+    assert result.converged, result.message
+    start_bite, start_twist = _bite_and_twist_deg(start)
+    bite, twist = _bite_and_twist_deg(result.atoms)
+    assert start_twist == pytest.approx(twist_deg, abs=1e-6)
+    assert twist == pytest.approx(twist_deg, abs=3.0)
+    assert abs(bite - start_bite) > 1.0
+    assert abs(bite - 90.0) > 1.0 and abs(bite - 109.47) > 1.0

@@ -26,7 +26,7 @@ import numpy as np
 
 from ..chem.complex import Complex
 from ..geometry.builder import build, build_path_point
-from ..geometry.isomers import isomers
+from ..geometry.isomers import isomers_of
 from ..geometry.polyhedra import TETRAHEDRAL_ANGLE_DEG
 
 TASKS = ("relax-held", "relax-free", "single-point", "path-point")
@@ -70,7 +70,7 @@ def complex_spec(cx: Complex) -> dict:
             custom[lig.name] = {
                 "symbols": list(lig.symbols), "positions_angstrom": np.round(lig.positions_angstrom, 6).tolist(),
                 "charge": lig.charge, "label": lig.label, "distance_angstrom": lig.distance_angstrom,
-                "f": lig.f.value, "pi_ratio": lig.pi_ratio.value, "h": lig.h.value, "repulsion_cm": lig.repulsion_cm.value,
+                "f": lig.f.value, "pi_ratio": lig.pi_ratio.value, "h": lig.h.value, "denticity": lig.denticity,
             }
     return {"metal": cx.metal.symbol, "oxidation_state": cx.oxidation_state,
             "ligands": [lig.name for lig in cx.ligands], "custom_ligands": custom}
@@ -160,10 +160,9 @@ def expand(study) -> list[Job]:
     builder = _Builder()
     for entry in study.complexes:
         cx = entry.complex
-        names = tuple(lig.name for lig in cx.ligands)
         common = {"formula": cx.formula, "complex": complex_spec(cx), "charge": cx.charge}
         for arrangement in entry.arrangements:
-            for isomer in isomers(names, arrangement):
+            for isomer in isomers_of(cx, arrangement):
                 atoms = build(cx, arrangement, isomer)
                 for spin2s in entry.spins:
                     for kind in study.relaxations:
@@ -172,7 +171,7 @@ def expand(study) -> list[Job]:
                         label = f"{cx.formula} {arrangement} {isomer.label} 2S={spin2s} {kind}".replace("  ", " ")
                         _state_chain(builder, study.level, base, atoms, kind, label, path=False)
         if study.path_points and "SP-4" in entry.arrangements:
-            sp_isomers = isomers(names, "SP-4")
+            sp_isomers = isomers_of(cx, "SP-4")
             for isomer in sp_isomers:
                 for angle in path_angles_deg(study.path_points):
                     atoms = build_path_point(cx, angle, isomer.label)
