@@ -108,8 +108,10 @@ def test_cone_of_a_single_atom_is_its_sphere():
     ("en", 2.03, 84.0, "common practice, no source: M(en) bites 82–86° at M–N 2.0–2.1 Å"),
 ])
 def test_bite_angle_from_the_fragment(name, distance, bite, source):
-    # ±6°: the fragments were relaxed at GFN2-xTB in [PdCl2(L)], not in these complexes
-    assert bundled_ligands()[name].bite_angle_deg(distance) == pytest.approx(bite, abs=6.0), source
+    # ±7°: the fragments were relaxed at GFN2-xTB in [PdCl2(L)], not in these complexes, and a chelate's donor
+    # separation changes by about 0.1 Å from metal to metal (acac: O···O 2.78 Å in Cu(acac)2 from the numbers
+    # above, 2.91 Å in the fragment), which moves the bite by about 5° at these distances
+    assert bundled_ligands()[name].bite_angle_deg(distance) == pytest.approx(bite, abs=7.0), source
 
 
 def test_ligand_table_and_entry():
@@ -219,3 +221,27 @@ def test_custom_chelate_through_a_recipe_reaches_the_worker():
         parse_recipe(CHELATE_RECIPE.replace("donor_indices = [0, 3]", "donor_indices = [0, 3]\ndonor_index = 0"))
     with pytest.raises(InputError, match="two 0-based atom indices"):
         parse_recipe(CHELATE_RECIPE.replace("donor_indices = [0, 3]", "donor_indices = [0]"))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", MONODENTATE + CHELATES)
+def test_every_new_ligand_relaxes_at_screen_level(name):
+    # One held GFN2-xTB relaxation per ligand of its Ni(II) complex, planar singlet (the screen level's
+    # engine, through fourfold.compute.relax): it converges, stays planar (tau4 below 0.15; Yang, Powell &
+    # Houser, Dalton Trans. 2007, 955) and keeps the ligand's bonds (bond lengths within 20 % of the fragment's).
+    from fourfold.compute.relax import relax
+    from fourfold.compute.xtb_engine import XtbPotential
+
+    cx = _test_complex(name)
+    start = build(cx, "SP-4")
+    potential = XtbPotential(start.get_chemical_symbols(), charge=cx.charge, spin2s=0)
+    result = relax(start, potential, "held", "SP-4", max_steps=200)
+    assert result.converged, result.message
+    assert geometry_indices(result.atoms, [1, 2, 3, 4])["tau4"] < 0.15
+    fragment = start.arrays["fragment"]
+    ligand_index = next(i for i, lig in enumerate(cx.ligands) if lig.name == name)
+    atoms = np.flatnonzero(fragment == ligand_index)
+    before = start.get_all_distances()[np.ix_(atoms, atoms)]
+    after = result.atoms.get_all_distances()[np.ix_(atoms, atoms)]
+    bonded = (before > 0) & (before < 1.8)
+    assert np.all(np.abs(after[bonded] / before[bonded] - 1) < 0.2)

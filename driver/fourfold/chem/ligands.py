@@ -133,6 +133,7 @@ def _bundled() -> dict[str, Ligand]:
             h=_sourced(row["h"], sources),
             aliases=tuple(row["aliases"]),
             denticity=row.get("denticity", 1),
+            distance_angstrom=row.get("distance_angstrom"),
             published_cone_deg=_sourced(row["tolman_cone_deg"], sources) if "tolman_cone_deg" in row else None,
             geometry_source=sources[row.get("geometry", "typical")],
         )

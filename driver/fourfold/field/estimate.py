@@ -67,9 +67,9 @@ DEFAULT_E_DS_RATIO = Sourced(0.2, "e_ds ≈ e_σ/4…e_σ/5 for planar Cu/Ni chl
 # The two calibrated constants of the repulsion (module docstring, term 3): the grid point of best training
 # score with the widest margin, benchmarks/estimate_score.py --calibrate (numbers in DEVELOPERS.md).
 _CALIBRATION = "calibrated on data/estimate_training.toml (benchmarks/estimate_score.py --calibrate)"
-DEFAULT_STERIC_SCALE = Sourced(4000.0, f"repulsion of two ligands whose cones touch; {_CALIBRATION}")
-DEFAULT_STERIC_EXPONENT = Sourced(6.0, f"steepness of the repulsion; {_CALIBRATION}")
-DEFAULT_SCREENING = Sourced(0.3, f"share of the bare Coulomb repulsion between charged donors; {_CALIBRATION}")
+DEFAULT_STERIC_SCALE = Sourced(16000.0, f"repulsion of two ligands whose cones touch; {_CALIBRATION}")
+DEFAULT_STERIC_EXPONENT = Sourced(1.5, f"steepness of the repulsion; {_CALIBRATION}")
+DEFAULT_SCREENING = Sourced(0.125, f"share of the bare Coulomb repulsion between charged donors; {_CALIBRATION}")
 _LIGAND_KEYS = ("e_sigma", "e_pi", "f", "pi_ratio", "h", "cone")
 _METAL_KEYS = ("B", "C", "g", "k")
 _GLOBAL_KEYS = ("e_ds_ratio", "e_scale", "steric_scale", "steric_exponent", "screening")

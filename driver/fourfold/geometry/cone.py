@@ -10,9 +10,11 @@ about the axis when they are alike. The donor itself is left out, as in Tolman's
 ligand (Cl⁻) is the cone of its own sphere. Tolman measured space-filling models with the substituents
 folded back as far as they go; this is the cone of one relaxed conformer, so it can come out wider.
 
-A chelate's donor gets the cone of its own half of the ligand: its substituents, the backbone cut where
-it is as many bonds from the other donor (atoms half-way count for both), about its own metal–donor axis
-with the metal where the fragment puts it at 2.28 Å from both donors.
+A chelate's donor gets the cone of its own half of the ligand, about its own metal–donor axis with the
+metal where the fragment puts it at 2.28 Å from both donors. As in Tolman's treatment of chelating
+diphosphines (Tolman 1977, from memory), the backbone — the substituent on the shortest path to the other
+donor — counts with half the bite angle (the angle from the M–donor axis to the bisector of D–M–D), the
+other substituents as above: dmpe comes out at Tolman's 107°.
 """
 
 from __future__ import annotations
@@ -72,18 +74,26 @@ def _bond_counts(bonded: np.ndarray, start: int, blocked: int | None = None) -> 
     return distance
 
 
-def _substituents(ligand: Ligand, donor: int) -> list[list[int]]:
-    """Per bond of the donor, the atoms hanging off it (on the donor's own side of a chelate)."""
+def _substituents(ligand: Ligand, donor: int) -> tuple[list[list[int]], int]:
+    """Per bond of the donor, the atoms hanging off it; for a chelate also how many of the donor's bonds lead
+    along the backbone (returned last, not as atom groups)."""
     bonded = _bonds(ligand.symbols, ligand.positions_angstrom)
     far = len(bonded) + 1
-    mine = _bond_counts(bonded, donor)
-    theirs = _bond_counts(bonded, 1 - donor) if ligand.is_chelate else np.full(len(bonded), far)
-    own = [i for i in range(ligand.denticity, len(bonded)) if mine[i] <= theirs[i]]
+    neighbours = [i for i in np.flatnonzero(bonded[donor]) if i >= ligand.denticity]
+    own = range(ligand.denticity, len(bonded))
+    backbone = []
+    if ligand.is_chelate:
+        # a ring substituent reaches the other donor both ways round: only its own half counts
+        mine, to_other = _bond_counts(bonded, donor), _bond_counts(bonded, 1 - donor)
+        own = [i for i in own if mine[i] <= to_other[i]]
+        shortest = min(to_other[i] for i in neighbours)
+        backbone = [i for i in neighbours if to_other[i] == shortest]
     groups = []
-    for first in (i for i in own if mine[i] == 1):
-        reached = _bond_counts(bonded, first, blocked=donor)
-        groups.append([i for i in own if reached[i] < far])
-    return groups
+    for first in neighbours:
+        if first not in backbone:
+            reached = _bond_counts(bonded, first, blocked=donor)
+            groups.append([i for i in own if reached[i] < far])
+    return groups, len(backbone)
 
 
 def cone_angle_deg(ligand: Ligand, donor: int = 0, metal_donor_angstrom: float = TOLMAN_METAL_DONOR_ANGSTROM) -> float:
@@ -104,8 +114,11 @@ def cone_angle_deg(ligand: Ligand, donor: int = 0, metal_donor_angstrom: float =
             half = max(half, off_axis + np.degrees(np.arcsin(radius / distance)))
         return half
 
-    groups = _substituents(ligand, donor) or [[donor]]
-    return float(min(2.0 * np.mean([half_angle_deg(group) for group in groups]), 360.0))
+    groups, backbone = _substituents(ligand, donor)
+    halves = [half_angle_deg(group) for group in groups]
+    if backbone:
+        halves += [ligand.bite_angle_deg(metal_donor_angstrom) / 2.0] * backbone
+    return float(min(2.0 * np.mean(halves or [half_angle_deg([donor])]), 360.0))
 
 
 def donor_cone_angles_deg(ligand: Ligand) -> tuple[float, ...]:
