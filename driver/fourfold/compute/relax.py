@@ -10,13 +10,15 @@ Two kinds (DESIGN.md, "Chemistry decisions"):
   coordinate is ill-defined there). In a square, out-of-plane motions change the cis angles only to
   second order, hence the plane dihedrals.
   Bond lengths and the ligands' own internal coordinates relax.
-  With chelates the bite angles are never held (a chelate keeps its own bite, not 90° or 109.5°), and
-  neither is any angle the bites would fix through the others. What tells T-4 from SP-4 is held instead:
-  the dihedrals of the donor rings (four donors taken in a cycle that runs along every chelate), at their
-  start values — near 0° for the square (with the metal-in-plane dihedral as above), about ±70° for the
-  tetrahedron, the angle between the two chelate planes of a bis-chelate following from them — and the
-  L–M–L angles between donors of two monodentate ligands. In SS-4 and vTBPY-4 every angle but the bites
-  and the near-linear ones is held.
+  With chelates a bite angle is never held as such, and the start has the fragment's own bite (the
+  builder's), never 90° or 109.5°. A square is held by what makes it one: the donor-ring and metal-in-plane
+  dihedrals above and the angles between donors of two monodentate ligands; the chelates' bites and the
+  angles next to them relax in the plane. Any other arrangement holds every L–M–L angle but the bites
+  and the near-linear ones. Holding less there is not enough: with only the donor-ring dihedrals (which
+  fix the angle between a chelate's plane and the other donors' plane) and the X–M–X angle, the metal
+  slid within a held donor set and a T-4 [Ni(en)Cl2] singlet ended as a seesaw (tau4 0.64, GFN2-xTB);
+  holding the four chelate–monodentate angles too leaves a single chelate's bite at its start value,
+  the fragment's own.
 * ``free`` is unconstrained.
 
 Neither starts exactly where it is told to, because from an exactly symmetric start the gradient
@@ -163,23 +165,17 @@ def _chelate_constraints(arrangement, metal_index, donors, pairs, trans, chelate
     bites = {frozenset(int(i) for i in pair) for pair in chelate_pairs}
     if not all(len(bite) == 2 and bite <= set(donors) for bite in bites):
         raise InputError(f"chelate donor pairs {list(chelate_pairs)} must be pairs of the donors {donors}")
-    chelated = set().union(*bites)
     m = metal_index + 1
-    if arrangement not in ("T-4", "SP-4"):
+    if arrangement != "SP-4":
         held = [p for p in pairs if frozenset(p) not in bites and p not in trans]
         return "\n".join(["$freeze"] + [f"angle {i + 1} {m} {j + 1}" for i, j in held]) + "\n"
-    held = [p for p in pairs if not set(p) & chelated and p not in trans]
+    chelated = set().union(*bites)
+    (p, r), (q, t) = trans  # the square's diagonals: p-q-r-t is its donor ring
+    if len({p, q, r, t}) != 4:
+        raise InputError("start geometry does not look SP-4: its two trans angles share a donor")
+    held = [pair for pair in pairs if not set(pair) & chelated and pair not in trans]
     lines = ["$freeze"] + [f"angle {i + 1} {m} {j + 1}" for i, j in held]
-    if arrangement == "SP-4":
-        (p, r), (q, t) = trans  # the square's diagonals: p-q-r-t is its donor ring
-        if len({p, q, r, t}) != 4:
-            raise InputError("start geometry does not look SP-4: its two trans angles share a donor")
-        lines += [f"dihedral {p + 1} {q + 1} {r + 1} {t + 1}", f"dihedral {p + 1} {q + 1} {r + 1} {m}"]
-    else:
-        a, b, c, d = donors
-        for cycle in ((a, b, c, d), (a, b, d, c), (a, c, b, d)):
-            if bites <= {frozenset((cycle[k], cycle[(k + 1) % 4])) for k in range(4)}:
-                lines.append("dihedral " + " ".join(str(i + 1) for i in cycle))
+    lines += [f"dihedral {p + 1} {q + 1} {r + 1} {t + 1}", f"dihedral {p + 1} {q + 1} {r + 1} {m}"]
     return "\n".join(lines) + "\n"
 
 
