@@ -24,10 +24,10 @@ from pathlib import Path
 
 import numpy as np
 from ase import Atoms
-
 from fourfold.chem.ligands import covalent_radius_angstrom
 from fourfold.compute.relax import relax
 from fourfold.compute.xtb_engine import XtbPotential
+from fourfold.errors import FourfoldError
 from fourfold.units import hartree_to_kj_mol
 
 DATA = Path(__file__).resolve().parents[1] / "driver" / "fourfold" / "data" / "ligands.toml"
@@ -237,7 +237,7 @@ def bridged(donor_symbol, carbons, substituent, rng, bite, distance):
 
 def bipyridine(rng, bite, distance):
     """Two pyridine rings joined by C2–C2' (1.48 Å), N1 and N1' bound, cis and planar."""
-    model, metal, sites = chelate_model(bite, distance)
+    model, metal, _ = chelate_model(bite, distance)
     step = 1.34 * np.array([-np.sin(np.radians(60)), np.cos(np.radians(60)), 0.0])
     height = 0.74 + step[1]
     x = np.sqrt(distance**2 - height**2) - step[0]
@@ -256,7 +256,7 @@ def bipyridine(rng, bite, distance):
 
 def phenanthroline(rng, bite, distance):
     """Three angularly fused hexagons (side 1.39 Å), N1 and N10 in the bay, bound."""
-    model, metal, sites = chelate_model(bite, distance)
+    model, metal, _ = chelate_model(bite, distance)
     side = 1.39
     apothem = side * np.sqrt(3) / 2
     x_middle = np.sqrt(distance**2 - side**2) + 2 * apothem
@@ -283,9 +283,9 @@ def planar_ring(kind, rng, bite, distance):
     model, metal, sites = chelate_model(bite, distance)
     if kind == "acac":
         o1, o2 = (model.add("O", site) for site in sites)
-        c2 = model.add("C", [2.65, 1.20, 0.0])
+        model.add("C", [2.65, 1.20, 0.0])
         model.add("C", [3.30, 0.0, 0.0], 1, True)
-        c4 = model.add("C", [2.65, -1.20, 0.0])
+        model.add("C", [2.65, -1.20, 0.0])
         model.add("C", [3.60, 2.38, 0.0], 3)
         model.add("C", [3.60, -2.38, 0.0], 3)
         return model, [o1, o2], metal, -1
@@ -378,7 +378,7 @@ def conformers(name: str, seed: int = 11):
         try:
             result = relax(atoms, potential, "free", arrangement, metal_index=metal, donor_indices=coordinated,
                            max_steps=400, convergence="default")
-        except Exception as error:  # a start that fails is reported and skipped; the others decide
+        except FourfoldError as error:  # a start that fails is reported and skipped; the others decide
             print(f"{name} conformer {trial}: failed ({error})", flush=True)
             continue
         before = {b for b in _bond_set(symbols, positions) if b[0] in ligand and b[1] in ligand}
@@ -427,7 +427,7 @@ def fragment_frame(positions, donors, metal):
 def write_atoms(name: str, symbols, positions, distance_angstrom=None) -> None:
     """Rewrite the ligand's ``atoms`` array (and a chelate's ``distance_angstrom``) in data/ligands.toml."""
     text = DATA.read_text()
-    header = re.search(rf'^\[(?:{re.escape(name)}|"{re.escape(name)}")\]\n', text, flags=re.M)
+    header = re.search(rf'^\[(?:{re.escape(name)}|"{re.escape(name)}")\]\n', text, flags=re.MULTILINE)
     if header is None:
         raise SystemExit(f"{name}: no [{name}] table in {DATA}")
     start = text.index("atoms = [", header.end())
@@ -436,7 +436,7 @@ def write_atoms(name: str, symbols, positions, distance_angstrom=None) -> None:
     block = f"atoms = [\n{rows}\n]\n"
     table = text[header.end():start]
     if distance_angstrom is not None:
-        table = re.sub(r"^distance_angstrom = .*\n", "", table, flags=re.M) + f"distance_angstrom = {distance_angstrom:.3f}\n"
+        table = re.sub(r"^distance_angstrom = .*\n", "", table, flags=re.MULTILINE) + f"distance_angstrom = {distance_angstrom:.3f}\n"
     DATA.write_text(text[:header.end()] + table + block + text[end:])
 
 

@@ -3,7 +3,6 @@ builds without clashes, held relaxations that keep the arrangement but not the b
 
 import numpy as np
 import pytest
-
 from fourfold.chem.complex import complex_from_formula
 from fourfold.chem.library import hill_formula, ligand_entry, ligand_table, ligands_text
 from fourfold.chem.ligands import bundled_ligands, custom_ligand

@@ -167,7 +167,7 @@ def test_held_chelate_keeps_the_arrangement_not_the_bite(arrangement, spin2s, tw
     potential = XtbPotential(start.get_chemical_symbols(), charge=0, spin2s=spin2s)
     result = relax(start, potential, "held", arrangement, max_steps=150)
     assert result.converged, result.message
-    start_bite, start_twist = _bite_and_twist_deg(start)
+    _, start_twist = _bite_and_twist_deg(start)
     bite, twist = _bite_and_twist_deg(result.atoms)
     assert start_twist == pytest.approx(twist_deg, abs=1e-6)
     assert twist == pytest.approx(twist_deg, abs=3.0)

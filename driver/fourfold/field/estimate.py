@@ -64,9 +64,10 @@ DEFAULT_ARRANGEMENTS = ("T-4", "SP-4")
 # tetrahedral [NiCl4]2- (4 460) near its fitted 3 000–4 000 (from memory).
 DEFAULT_E_SCALE = Sourced(1.5, "four-coordinate bond contraction factor on f·g values (fourfold default, see field/estimate.py)")
 DEFAULT_E_DS_RATIO = Sourced(0.2, "e_ds ≈ e_σ/4…e_σ/5 for planar Cu/Ni chlorides (Deeth & Gerloch 1984, from memory)")
-# The two calibrated constants of the repulsion (module docstring, term 3): the grid point of best training
-# score with the widest margin, benchmarks/estimate_score.py --calibrate (numbers in DEVELOPERS.md).
-_CALIBRATION = "calibrated on data/estimate_training.toml (benchmarks/estimate_score.py --calibrate)"
+# The three calibrated constants of the repulsion (module docstring, term 3): of the grid points that get all of
+# the training set right, the one whose smallest margin is widest (benchmarks/estimate_score --calibrate:
+# 21/21 at 21 of 2380 points, screening 0.05–0.25, n 1.5–3, ε 3 000–16 000 cm⁻¹; this one's margin 9.3 kJ/mol).
+_CALIBRATION = "calibrated on data/estimate_training.toml (benchmarks/estimate_score --calibrate)"
 DEFAULT_STERIC_SCALE = Sourced(16000.0, f"repulsion of two ligands whose cones touch; {_CALIBRATION}")
 DEFAULT_STERIC_EXPONENT = Sourced(1.5, f"steepness of the repulsion; {_CALIBRATION}")
 DEFAULT_SCREENING = Sourced(0.125, f"share of the bare Coulomb repulsion between charged donors; {_CALIBRATION}")
@@ -304,8 +305,10 @@ def confidence_notes(cx: Complex, params: Parameters) -> tuple[str, ...]:
     metal = {"g": cx.metal.g(cx.oxidation_state), "B": params.racah_b_cm, "k": params.k}
     guessed = [name for name, value in metal.items() if _is_fallback(value.source)]
     if guessed:
-        notes.append(f"low confidence: {ion} has no tabulated {', '.join(guessed)}; fourfold's fallbacks are used "
-                     "(see the parameters), so this estimate is a guess for this metal")
+        closed = cx.d_electrons in (0, 10)
+        notes.append(f"{ion} has no tabulated {', '.join(guessed)}: fourfold's fallbacks are used (see the parameters); "
+                     + ("they do not enter here, a d0/d10 shell has no ligand-field or pairing term" if closed
+                        else "the ligand-field and pairing terms are guesses for this metal"))
     for ligand in {lig.name: lig for lig in cx.ligands}.values():
         if _is_untabulated(ligand.f.source):
             notes.append(f"{ligand.name}: f (σ-donor strength) is not tabulated; placed by the spectrochemical series")

@@ -17,7 +17,6 @@ import numpy as np
 
 from .polyhedra import unit_vectors
 
-
 # Largest site–site angle a two-donor chelate spans: bites are 70–100°, so cis sites of every arrangement
 # (90°, 109.5°, the 120° of the trigonal pyramid's equator) but never trans ones [common practice, no source].
 CHELATE_SPAN_MAX_DEG = 125.0
