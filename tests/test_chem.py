@@ -112,8 +112,9 @@ def test_sixteen_ligands_with_sources():
     required = {"F", "Cl", "Br", "I", "CN", "NCS", "OH", "CH3", "H", "CO", "NH3", "H2O", "PH3", "PMe3", "PF3", "py"}
     assert required <= set(ligands)
     for ligand in ligands.values():
-        for value in (ligand.f, ligand.pi_ratio, ligand.h, ligand.repulsion_cm):
+        for value in (ligand.f, ligand.pi_ratio, ligand.h):
             assert value.source  # every number says where it came from
+        assert ligand.geometry_source  # and so does every fragment
     assert ligands["CN"].donor == "C" and ligands["NCS"].donor == "N"
     assert ligands["CN"].pi_acceptor and not ligands["Cl"].pi_acceptor
 

@@ -137,3 +137,39 @@ def test_unknown_options_are_input_errors(option):
     arguments = {"kind": "free", "arrangement": "T-4", **option}
     with pytest.raises(InputError):
         relax(nicl4(TETRAHEDRON), screen_potential(2), **arguments)
+
+
+def _bite_and_twist_deg(atoms):
+    """The en chelate's N–Ni–N angle and the angle between the N–Ni–N and Cl–Ni–Cl planes."""
+    p = atoms.get_positions()
+    u = [(p[i] - p[0]) / np.linalg.norm(p[i] - p[0]) for i in (1, 2, 3, 4)]
+    bite = np.degrees(np.arccos(np.clip(u[0] @ u[1], -1, 1)))
+    n1, n2 = np.cross(u[0], u[1]), np.cross(u[2], u[3])
+    twist = np.degrees(np.arccos(np.clip(abs(n1 @ n2) / np.linalg.norm(n1) / np.linalg.norm(n2), 0, 1)))
+    return bite, twist
+
+
+@pytest.mark.parametrize("arrangement, spin2s, twist_deg", [("SP-4", 0, 0.0), ("T-4", 2, 90.0)])
+def test_held_chelate_keeps_the_arrangement_not_the_bite(arrangement, spin2s, twist_deg):
+    # [Ni(en)Cl2]: the chelate and Cl–Ni–Cl planes are one plane in SP-4 and perpendicular in T-4 (the
+    # tetrahedron's opposite edges are perpendicular) [common practice, no source]. The held relaxation keeps
+    # that, but not the bite (no constraint names both chelate donors): it stays near the fragment's own
+    # (M(en) bites are 82–86°, common practice, no source) and goes to neither 90° nor 109.5°.
+    from fourfold.chem.complex import complex_from_formula
+    from fourfold.compute.relax import held_constraints
+    from fourfold.geometry.builder import build
+
+    cx = complex_from_formula("[Ni(en)Cl2]")
+    start = build(cx, arrangement)
+    assert start.info["chelate_pairs"] == [(1, 2)]
+    frozen = held_constraints(start.get_positions(), arrangement, 0, [1, 2, 3, 4], start.info["chelate_pairs"])
+    assert not any(line.startswith("angle") and {"2", "3"} <= set(line.split()[1:]) for line in frozen.splitlines())
+    potential = XtbPotential(start.get_chemical_symbols(), charge=0, spin2s=spin2s)
+    result = relax(start, potential, "held", arrangement, max_steps=150)
+    assert result.converged, result.message
+    _, start_twist = _bite_and_twist_deg(start)
+    bite, twist = _bite_and_twist_deg(result.atoms)
+    assert start_twist == pytest.approx(twist_deg, abs=1e-6)
+    assert twist == pytest.approx(twist_deg, abs=3.0)
+    assert bite == pytest.approx(84.0, abs=6.0)
+    assert abs(bite - 90.0) > 3.0 and abs(bite - 109.47) > 3.0

@@ -1,4 +1,5 @@
-"""Complex: a metal ion with four monodentate ligands; charge balance, d count and allowed spins."""
+"""Complex: a metal ion with four donor atoms (monodentate ligands and two-donor chelates); charge balance,
+d count and allowed spins."""
 
 from __future__ import annotations
 
@@ -27,12 +28,32 @@ class Complex:
     ligands: tuple[Ligand, ...]
 
     def __post_init__(self):
-        if len(self.ligands) != COORDINATION_NUMBER:
-            raise InputError(
-                f"{self.metal.symbol} has {len(self.ligands)} ligands: fourfold handles four-coordinate "
-                "complexes with exactly four monodentate ligands"
-            )
+        donors = sum(lig.denticity for lig in self.ligands)
+        if donors != COORDINATION_NUMBER:
+            raise InputError(f"{self.metal.symbol} has {_count_words(self.ligands)}: {_FOUR_DONORS}")
         self.metal.d_electrons(self.oxidation_state)  # validates the oxidation state
+
+    @property
+    def sites(self) -> tuple[tuple[int, int], ...]:
+        """The four donor atoms as (index into ``ligands``, which donor of that ligand), ligands in order."""
+        return tuple((i, k) for i, lig in enumerate(self.ligands) for k in range(lig.denticity))
+
+    @property
+    def site_names(self) -> tuple[str, ...]:
+        """Per donor site the ligand's name; the two ends of a chelate with different donor elements are told
+        apart ('gly:N', 'gly:O'), so isomers that swap them count as different."""
+        names = []
+        for i, k in self.sites:
+            ligand = self.ligands[i]
+            symmetric = len(set(ligand.donors)) == 1
+            names.append(ligand.name if symmetric else f"{ligand.name}:{ligand.donors[k]}")
+        return tuple(names)
+
+    @property
+    def chelate_site_pairs(self) -> tuple[tuple[int, int], ...]:
+        """Pairs of site indices held by one chelate."""
+        sites = self.sites
+        return tuple((sites.index((i, 0)), sites.index((i, 1))) for i, lig in enumerate(self.ligands) if lig.is_chelate)
 
     @property
     def charge(self) -> int:
@@ -85,11 +106,19 @@ def complex_from_formula(text: str, custom_ligands: dict[str, Ligand] | None = N
     ligand_charge = sum(lig.charge for lig in ligands)
     if parsed.oxidation_state is not None:
         return complex_explicit(metal.symbol, parsed.oxidation_state, ligands, charge=parsed.charge)
-    if len(ligands) != COORDINATION_NUMBER:
-        raise InputError(
-            f"'{text}' has {len(ligands)} ligands: fourfold handles four-coordinate complexes with exactly four monodentate ligands"
-        )
+    if sum(lig.denticity for lig in ligands) != COORDINATION_NUMBER:
+        raise InputError(f"'{text}' has {_count_words(ligands)}: {_FOUR_DONORS}")
     return Complex(metal, parsed.charge - ligand_charge, ligands)
+
+
+_FOUR_DONORS = "fourfold handles four-coordinate complexes (four donor atoms; a chelate such as en counts two)"
+
+
+def _count_words(ligands) -> str:
+    donors = sum(lig.denticity for lig in ligands)
+    if donors == len(ligands):
+        return f"{len(ligands)} ligands"
+    return f"{len(ligands)} ligands with {donors} donor atoms"
 
 
 def complex_explicit(metal: str, oxidation_state: int, ligands, charge: int | None = None,

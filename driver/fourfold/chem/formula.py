@@ -1,8 +1,10 @@
-"""Formula parser: '[NiCl4]2-', '[Ni(CN)4]2-', '[NiCl2(PMe3)2]', 'Ni(CO)4', '[Ni(II)Cl4]2-'.
+"""Formula parser: '[NiCl4]2-', '[Ni(CN)4]2-', '[NiCl2(PMe3)2]', 'Ni(CO)4', '[Ni(II)Cl4]2-', '[Ni(dppe)Cl2]',
+'[NiCl2(P(t-Bu)3)2]'.
 
 Grammar (informal): optional square brackets around  METAL [ (ROMAN) ]  LIGAND-GROUP+ , then an optional
-charge ('2-', '+', '^2-', '3+'). A ligand group is a ligand name or alias, or one in parentheses, with an
-optional count. Ligand names are matched longest-first, so 'NiCl2(PMe3)2' reads Cl ×2 and PMe3 ×2.
+charge ('2-', '+', '^2-', '3+'). A ligand group is a ligand name or alias, or one in (balanced)
+parentheses, with an optional count. Ligand names are matched longest-first, so 'NiCl2(PMe3)2' reads
+Cl ×2 and PMe3 ×2.
 """
 
 from __future__ import annotations
@@ -11,6 +13,7 @@ import re
 from dataclasses import dataclass
 
 from ..errors import InputError
+from .ligands import unknown_ligand_error
 
 _ROMAN = {"0": 0, "I": 1, "II": 2, "III": 3, "IV": 4, "V": 5, "VI": 6, "VII": 7, "VIII": 8,
           "-I": -1, "-II": -2}
@@ -67,18 +70,18 @@ def _split_ligands(original: str, rest: str, known: dict[str, str]) -> list[str]
     position = 0
     while position < len(rest):
         if rest[position] == "(":
-            end = rest.find(")", position)
+            end = _closing_parenthesis(rest, position)
             if end < 0:
                 raise InputError(f"malformed formula '{original}': '(' without ')'")
             token = rest[position + 1 : end]
             if token not in names:
-                raise _unknown_ligand(token, known)
+                raise unknown_ligand_error(token, known)
             position = end + 1
         else:
             token = next((n for n in names if rest.startswith(n, position)), None)
             if token is None:
                 bad = re.match(r"[A-Z][a-z]*|.", rest[position:]).group(0)
-                raise _unknown_ligand(bad, known)
+                raise unknown_ligand_error(bad, known)
             position += len(token)
         count_match = re.match(r"\d+", rest[position:])
         count = int(count_match.group(0)) if count_match else 1
@@ -91,6 +94,12 @@ def _split_ligands(original: str, rest: str, known: dict[str, str]) -> list[str]
     return ligands
 
 
-def _unknown_ligand(token: str, known: dict[str, str]) -> InputError:
-    known = ", ".join(sorted(set(known.values()), key=str.lower))
-    return InputError(f"unknown ligand '{token}': known ligands are {known}; define others in a recipe's [ligands] table")
+def _closing_parenthesis(text: str, start: int) -> int:
+    """Index of the ')' matching the '(' at ``start`` (-1 if unbalanced): 'P(t-Bu)3' nests in '(P(t-Bu)3)2'."""
+    depth = 0
+    for index in range(start, len(text)):
+        depth += {"(": 1, ")": -1}.get(text[index], 0)
+        if depth == 0:
+            return index
+    return -1
+

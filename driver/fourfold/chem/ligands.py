@@ -1,11 +1,19 @@
-"""Monodentate ligands: charge, donor atom, internal geometry and ligand-field parameters.
+"""Ligands: charge, donor atom(s), a built 3D fragment and ligand-field parameters.
 
 The bundled set lives in ``data/ligands.toml``; a recipe can add ligands of its own with
-:func:`custom_ligand` (an XYZ fragment, the donor index and the charge).
+:func:`custom_ligand` (an XYZ fragment, the donor index or the two donor indices of a chelate, the charge).
+
+Fragment frames (``positions_angstrom``; the first ``denticity`` atoms are the donors):
+
+* monodentate: the donor at the origin, the metal on the −z side (the M–L bond points along +z);
+* chelate (two donors): the donors on the y axis at ±d/2 (``symbols[0]`` on +y), the metal on the −x
+  axis and the backbone towards +x. The metal's distance is not stored: the builder puts the donors at the
+  complex's M–L distance r, so the bite angle is 2·asin(d / 2r), the fragment's own.
 """
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass, field, replace
 from functools import cache
 
@@ -17,13 +25,16 @@ from .metals import Sourced
 
 # Ligand-field defaults for a custom ligand whose recipe gives none: the middle of the spectrochemical
 # series (water-like) [common practice, no source]; the estimate labels them.
-_CUSTOM_DEFAULTS = {"f": 1.0, "pi_ratio": 0.0, "h": 1.5, "repulsion_cm": None}
+_CUSTOM_DEFAULTS = {"f": 1.0, "pi_ratio": 0.0, "h": 1.5}
+CUSTOM_SOURCE = "fourfold default for custom ligands: mid-series (water-like)"
+_PARAMETER_KEYS = ("f", "pi_ratio", "h")
+_CUSTOM_KEYS = {*_PARAMETER_KEYS, "label", "distance_angstrom"}
+MAX_DENTICITY = 2
 
 
 @dataclass(frozen=True)
 class Ligand:
-    """One monodentate ligand. ``positions_angstrom`` is in the local frame (donor at origin, M–L along +z
-    pointing away from the metal); ``symbols[0]`` is the donor."""
+    """One ligand: monodentate or a two-donor chelate, its fragment in the frame of the module docstring."""
 
     name: str
     label: str
@@ -33,17 +44,54 @@ class Ligand:
     f: Sourced
     pi_ratio: Sourced
     h: Sourced
-    repulsion_cm: Sourced
     aliases: tuple[str, ...] = ()
     distance_angstrom: float | None = None  # M–L start distance override
+    denticity: int = 1
+    published_cone_deg: Sourced | None = None  # Tolman's cone angle where one is published
+    geometry_source: str = "recipe fragment"
 
     @property
     def donor(self) -> str:
         return self.symbols[0]
 
     @property
+    def donors(self) -> tuple[str, ...]:
+        return self.symbols[: self.denticity]
+
+    @property
     def pi_acceptor(self) -> bool:
         return self.pi_ratio.value < 0
+
+    @property
+    def is_chelate(self) -> bool:
+        return self.denticity > 1
+
+    @property
+    def donor_separation_angstrom(self) -> float:
+        """Donor–donor distance of a chelate (0 for a monodentate ligand)."""
+        if not self.is_chelate:
+            return 0.0
+        return float(np.linalg.norm(self.positions_angstrom[0] - self.positions_angstrom[1]))
+
+    def metal_position_angstrom(self, first_angstrom: float, second_angstrom: float | None = None) -> np.ndarray:
+        """Where the metal sits in the fragment frame when the donors are these distances from it (a chelate's
+        second donor at the first's distance unless given)."""
+        if not self.is_chelate:
+            return np.array([0.0, 0.0, -first_angstrom])
+        second_angstrom = first_angstrom if second_angstrom is None else second_angstrom
+        d = self.donor_separation_angstrom
+        y = (second_angstrom**2 - first_angstrom**2) / (2.0 * d)  # from |M − D0| and |M − D1|, D0/D1 on ±y
+        squared = first_angstrom**2 - (y - d / 2.0) ** 2
+        if squared <= 0.0:
+            raise InputError(f"chelate '{self.name}': its donors are {d:.2f} Å apart, too far to bind one metal at "
+                             f"{first_angstrom:.2f}/{second_angstrom:.2f} Å; check the fragment's donor indices")
+        return np.array([-np.sqrt(squared), y, 0.0])
+
+    def bite_angle_deg(self, first_angstrom: float, second_angstrom: float | None = None) -> float:
+        """D–M–D angle of a chelate whose donors sit at these distances from the metal."""
+        metal = self.metal_position_angstrom(first_angstrom, second_angstrom)
+        a, b = self.positions_angstrom[0] - metal, self.positions_angstrom[1] - metal
+        return float(np.degrees(np.arccos(np.clip(a @ b / np.linalg.norm(a) / np.linalg.norm(b), -1.0, 1.0))))
 
 
 def covalent_radius_angstrom(symbol: str) -> float:
@@ -83,8 +131,11 @@ def _bundled() -> dict[str, Ligand]:
             f=_sourced(row["f"], sources),
             pi_ratio=_sourced(row["pi_ratio"], sources),
             h=_sourced(row["h"], sources),
-            repulsion_cm=_sourced(row["repulsion_cm"], sources),
             aliases=tuple(row["aliases"]),
+            denticity=row.get("denticity", 1),
+            distance_angstrom=row.get("distance_angstrom"),
+            published_cone_deg=_sourced(row["tolman_cone_deg"], sources) if "tolman_cone_deg" in row else None,
+            geometry_source=sources[row.get("geometry", "typical")],
         )
     return ligands
 
@@ -102,40 +153,48 @@ def ligand_lookup(extra: dict[str, Ligand] | None = None) -> dict[str, Ligand]:
     return lookup
 
 
+def unknown_ligand_error(token: str, names) -> InputError:
+    """One-line error for an unknown ligand name, with the closest known names (aliases included)."""
+    names = sorted(set(names), key=str.lower)
+    by_lower = {n.lower(): n for n in names}
+    close = [by_lower[n] for n in difflib.get_close_matches(token.lower(), list(by_lower), n=4, cutoff=0.5)]
+    hint = f"closest: {', '.join(close)}" if close else "`fourfold ligands` lists them"
+    return InputError(f"unknown ligand '{token}' ({hint}); define others in a recipe's [ligands] table")
+
+
 def get_ligand(name: str, extra: dict[str, Ligand] | None = None) -> Ligand:
     lookup = ligand_lookup(extra)
     if name in lookup:
         return lookup[name]
-    known = ", ".join(sorted({lig.name for lig in lookup.values()}))
-    raise InputError(f"unknown ligand '{name}': known ligands are {known}; define others in a recipe's [ligands] table")
+    raise unknown_ligand_error(name, lookup)
 
 
-def custom_ligand(name: str, xyz: str, donor_index: int, charge: int, **parameters) -> Ligand:
+def custom_ligand(name: str, xyz: str, donor_index, charge: int, **parameters) -> Ligand:
     """A ligand from an XYZ fragment (lines 'Symbol x y z' in Å, optional count/comment header).
 
-    The fragment is moved so the donor sits at the origin and turned so that its centroid lies on +z
-    (away from the metal). ``parameters`` may set f, pi_ratio, h, repulsion_cm, label, distance_angstrom.
+    ``donor_index`` is the donor's 0-based index, or a pair of indices for a chelate. The fragment is put
+    in the frame of the module docstring: a monodentate ligand's centroid goes onto +z, a chelate's
+    backbone (the centroid of its other atoms) onto +x. ``parameters`` may set f, pi_ratio, h, label,
+    distance_angstrom.
     """
     symbols, positions = _parse_xyz(name, xyz)
-    if not 0 <= donor_index < len(symbols):
-        raise InputError(f"ligand '{name}': donor_index {donor_index} is outside the fragment's {len(symbols)} atoms (0-based)")
+    donors = [donor_index] if isinstance(donor_index, int) else list(donor_index)
+    if not 1 <= len(donors) <= MAX_DENTICITY or len(set(donors)) != len(donors):
+        raise InputError(f"ligand '{name}': give one donor index, or two different ones for a chelate, got {donor_index}")
+    for index in donors:
+        if not 0 <= index < len(symbols):
+            raise InputError(f"ligand '{name}': donor_index {index} is outside the fragment's {len(symbols)} atoms (0-based)")
     for symbol in symbols:
         covalent_radius_angstrom(symbol)
-    order = [donor_index] + [i for i in range(len(symbols)) if i != donor_index]
-    symbols = tuple(symbols[i] for i in order)
-    positions = positions[order] - positions[donor_index]
-    positions = positions @ _rotation_to_z(positions).T
-    unknown = set(parameters) - {"f", "pi_ratio", "h", "repulsion_cm", "label", "distance_angstrom"}
+    unknown = set(parameters) - _CUSTOM_KEYS
     if unknown:
-        raise InputError(f"ligand '{name}': unknown keys {sorted(unknown)}; use f, pi_ratio, h, repulsion_cm, label, distance_angstrom")
-    values = {}
-    for key, default in _CUSTOM_DEFAULTS.items():
-        if key in parameters:
-            values[key] = Sourced(float(parameters[key]), "recipe")
-        elif default is None:
-            values[key] = _bundled()["NH3"].repulsion_cm if key == "repulsion_cm" else None
-        else:
-            values[key] = Sourced(default, "fourfold default for custom ligands: mid-series (water-like)")
+        raise InputError(f"ligand '{name}': unknown keys {sorted(unknown)}; use {', '.join(sorted(_CUSTOM_KEYS))}")
+    order = donors + [i for i in range(len(symbols)) if i not in donors]
+    symbols = tuple(symbols[i] for i in order)
+    positions = positions[order]
+    positions = _chelate_frame(name, positions) if len(donors) == 2 else _monodentate_frame(positions)
+    values = {key: Sourced(float(parameters[key]), "recipe") if key in parameters else Sourced(default, CUSTOM_SOURCE)
+              for key, default in _CUSTOM_DEFAULTS.items()}
     return Ligand(
         name=name,
         label=str(parameters.get("label", name)),
@@ -144,16 +203,16 @@ def custom_ligand(name: str, xyz: str, donor_index: int, charge: int, **paramete
         positions_angstrom=positions,
         aliases=(),
         distance_angstrom=parameters.get("distance_angstrom"),
+        denticity=len(donors),
         **values,
     )
 
 
 def with_parameters(ligand: Ligand, **values: float) -> Ligand:
     """Copy of a ligand with some ligand-field parameters overridden (source: 'override')."""
-    allowed = {"f", "pi_ratio", "h", "repulsion_cm"}
-    unknown = set(values) - allowed
+    unknown = set(values) - set(_PARAMETER_KEYS)
     if unknown:
-        raise InputError(f"cannot set {sorted(unknown)} on ligand {ligand.name}: settable are {sorted(allowed)}")
+        raise InputError(f"cannot set {sorted(unknown)} on ligand {ligand.name}: settable are {sorted(_PARAMETER_KEYS)}")
     return replace(ligand, **{k: Sourced(float(v), "override") for k, v in values.items()})
 
 
@@ -173,6 +232,25 @@ def _parse_xyz(name: str, xyz: str) -> tuple[list[str], np.ndarray]:
     if not symbols:
         raise InputError(f"ligand '{name}': the XYZ fragment has no atoms")
     return symbols, np.array(rows)
+
+
+def _monodentate_frame(positions: np.ndarray) -> np.ndarray:
+    """Donor (row 0) at the origin, the fragment's centroid on +z."""
+    positions = positions - positions[0]
+    return positions @ _rotation_to_z(positions).T
+
+
+def _chelate_frame(name: str, positions: np.ndarray) -> np.ndarray:
+    """Donors (rows 0, 1) on ±y about the origin, the backbone's centroid on +x (the metal goes on −x)."""
+    positions = positions - (positions[0] + positions[1]) / 2.0
+    y = positions[0] / np.linalg.norm(positions[0])
+    backbone = positions[2:].mean(axis=0) if len(positions) > 2 else np.zeros(3)
+    x = backbone - (backbone @ y) * y
+    if np.linalg.norm(x) < 0.1:
+        raise InputError(f"chelate '{name}': the fragment's other atoms do not lie to one side of its two donors, "
+                         "so the metal's side is unclear; check the donor indices")
+    x /= np.linalg.norm(x)
+    return positions @ np.column_stack([x, y, np.cross(x, y)])
 
 
 def _rotation_to_z(positions: np.ndarray) -> np.ndarray:

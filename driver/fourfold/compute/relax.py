@@ -10,6 +10,15 @@ Two kinds (a fourfold default):
   coordinate is ill-defined there). In a square, out-of-plane motions change the cis angles only to
   second order, hence the plane dihedrals.
   Bond lengths and the ligands' own internal coordinates relax.
+  With chelates a bite angle is never held as such, and the start has the fragment's own bite (the
+  builder's), never 90° or 109.5°. A square is held by what makes it one: the donor-ring and metal-in-plane
+  dihedrals above and the angles between donors of two monodentate ligands; the chelates' bites and the
+  angles next to them relax in the plane. Any other arrangement holds every L–M–L angle but the bites
+  and the near-linear ones. Holding less there is not enough: with only the donor-ring dihedrals (which
+  fix the angle between a chelate's plane and the other donors' plane) and the X–M–X angle, the metal
+  slid within a held donor set and a T-4 [Ni(en)Cl2] singlet ended as a seesaw (tau4 0.64, GFN2-xTB);
+  holding the four chelate–monodentate angles too leaves a single chelate's bite at its start value,
+  the fragment's own.
 * ``free`` is unconstrained.
 
 Neither starts exactly where it is told to, because from an exactly symmetric start the gradient
@@ -116,11 +125,12 @@ def _checked_donors(n_atoms: int, metal_index: int, donor_indices: Sequence[int]
 
 
 def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
-                     donor_indices: Sequence[int]) -> str:
+                     donor_indices: Sequence[int], chelate_pairs: Sequence[Sequence[int]] = ()) -> str:
     """geomeTRIC ``$freeze`` block that keeps the start geometry's L–M–L arrangement.
 
-    InputError when the start geometry's count of near-linear L–M–L angles does not match the
-    arrangement (wrong donor indices or a start geometry of another shape).
+    ``chelate_pairs`` are the atom indices of each chelate's two donors. InputError when the start
+    geometry's count of near-linear L–M–L angles does not match the arrangement (wrong donor indices or
+    a start geometry of another shape).
     """
     if arrangement not in ARRANGEMENTS:
         raise InputError(f"unknown arrangement '{arrangement}': use one of {', '.join(ARRANGEMENTS)}")
@@ -133,6 +143,8 @@ def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
             f"start geometry does not look {arrangement}: {len(trans)} L–M–L angles above "
             f"{LINEAR_ANGLE_DEG:.0f}°, expected {_TRANS_ANGLES[arrangement]} (check donor indices)"
         )
+    if chelate_pairs:
+        return _chelate_constraints(arrangement, metal_index, donors, pairs, trans, chelate_pairs)
     all_holdable = all(_angle_deg(positions, metal_index, *p) <= HOLDABLE_ANGLE_DEG for p in pairs)
     held = pairs if all_holdable else [p for p in pairs if p not in trans]
     # geomeTRIC numbers atoms from 1.
@@ -145,6 +157,25 @@ def held_constraints(positions_angstrom, arrangement: str, metal_index: int,
         # Ring a-b-c-d: the donors' plane, and the metal in it.
         lines.append(f"dihedral {a + 1} {b + 1} {c + 1} {d + 1}")
         lines.append(f"dihedral {a + 1} {b + 1} {c + 1} {m}")
+    return "\n".join(lines) + "\n"
+
+
+def _chelate_constraints(arrangement, metal_index, donors, pairs, trans, chelate_pairs) -> str:
+    """The held constraints of a complex with chelates (module docstring)."""
+    bites = {frozenset(int(i) for i in pair) for pair in chelate_pairs}
+    if not all(len(bite) == 2 and bite <= set(donors) for bite in bites):
+        raise InputError(f"chelate donor pairs {list(chelate_pairs)} must be pairs of the donors {donors}")
+    m = metal_index + 1
+    if arrangement != "SP-4":
+        held = [p for p in pairs if frozenset(p) not in bites and p not in trans]
+        return "\n".join(["$freeze"] + [f"angle {i + 1} {m} {j + 1}" for i, j in held]) + "\n"
+    chelated = set().union(*bites)
+    (p, r), (q, t) = trans  # the square's diagonals: p-q-r-t is its donor ring
+    if len({p, q, r, t}) != 4:
+        raise InputError("start geometry does not look SP-4: its two trans angles share a donor")
+    held = [pair for pair in pairs if not set(pair) & chelated and pair not in trans]
+    lines = ["$freeze"] + [f"angle {i + 1} {m} {j + 1}" for i, j in held]
+    lines += [f"dihedral {p + 1} {q + 1} {r + 1} {t + 1}", f"dihedral {p + 1} {q + 1} {r + 1} {m}"]
     return "\n".join(lines) + "\n"
 
 
@@ -208,11 +239,11 @@ def _atoms_at(atoms, positions_angstrom):
 
 
 def _internal_coordinates(molecule, kind: str, arrangement: str, metal_index: int,
-                          donor_indices: Sequence[int]):
+                          donor_indices: Sequence[int], chelate_pairs):
     """TRIC coordinates (geomeTRIC's default); for ``held`` with the constraints frozen at the start."""
     constraints, constraint_values = None, None
     if kind == "held":
-        text = held_constraints(molecule.xyzs[0], arrangement, metal_index, donor_indices)
+        text = held_constraints(molecule.xyzs[0], arrangement, metal_index, donor_indices, chelate_pairs)
         constraints, constraint_values = parse_constraints(molecule, text)
     return DelocalizedInternalCoordinates(
         molecule, build=True, connect=False, addcart=False, constraints=constraints,
@@ -222,8 +253,11 @@ def _internal_coordinates(molecule, kind: str, arrangement: str, metal_index: in
 
 def relax(atoms, potential: Potential, kind: str, arrangement: str, metal_index: int = 0,
           donor_indices: Sequence[int] = (1, 2, 3, 4), max_steps: int = 100,
-          convergence: str = "default", log_path=None) -> RelaxResult:
+          convergence: str = "default", log_path=None, chelate_pairs=None) -> RelaxResult:
     """Relax ``atoms`` on ``potential``: ``held`` keeps the L–M–L arrangement, ``free`` does not.
+
+    ``chelate_pairs`` (atom indices of each chelate's two donors) default to the builder's
+    ``atoms.info["chelate_pairs"]``.
 
     Ends after at most ``max_steps`` optimisation steps; an unconverged end is a result
     (converged=False), not an error. A potential raising NotConverged makes this raise
@@ -253,7 +287,8 @@ def relax(atoms, potential: Potential, kind: str, arrangement: str, metal_index:
     # rotation regularisation); those numpy warnings are noise on the terminal.
     with (tempfile.TemporaryDirectory(prefix="fourfold-relax-") as scratch, _geometric_log(log_path),
           np.errstate(divide="ignore", invalid="ignore")):
-        coordinates = _internal_coordinates(engine.M, kind, arrangement, metal_index, donors)
+        chelates = atoms.info.get("chelate_pairs", ()) if chelate_pairs is None else chelate_pairs
+        coordinates = _internal_coordinates(engine.M, kind, arrangement, metal_index, donors, chelates)
         params = OptParams(maxiter=max_steps, convergence_set=CONVERGENCE_SETS[convergence])
         optimizer = Optimizer(angstrom_to_bohr(start_angstrom).ravel(), engine.M, coordinates,
                               engine, scratch, params, print_info=False)

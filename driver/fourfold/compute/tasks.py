@@ -38,7 +38,7 @@ def complex_from_spec(spec):
             name=name, label=c["label"], charge=c["charge"], symbols=tuple(c["symbols"]),
             positions_angstrom=np.array(c["positions_angstrom"], dtype=float),
             f=Sourced(c["f"], "recipe"), pi_ratio=Sourced(c["pi_ratio"], "recipe"), h=Sourced(c["h"], "recipe"),
-            repulsion_cm=Sourced(c["repulsion_cm"], "recipe"), distance_angstrom=c["distance_angstrom"],
+            denticity=c["denticity"], distance_angstrom=c["distance_angstrom"],
         )
     cspec = spec.complex
     ligands = [custom.get(name, name) for name in cspec["ligands"]]

@@ -65,7 +65,8 @@ def estimate_text(result, cx=None, charge_assumed: bool = False) -> str:
         for spin2s, delta_cm in deltas.items():
             out.append(f"ΔE(SP-4 − T-4), {spin_label(spin2s)}: {delta_cm:,.0f} cm⁻¹ = {cm_to_kj_mol(delta_cm):.1f} kJ/mol")
     g = result.ground
-    out += ["", f"Estimated ground state: {_state_name(g.arrangement, g.isomer)}, {spin_label(g.spin2s)}", ""]
+    out += ["", f"Estimated ground state: {_state_name(g.arrangement, g.isomer)}, {spin_label(g.spin2s)}"]
+    out += [f"Confidence: {note}" for note in result.confidence_notes] + [""]
     out.append(_parameters_text(result.parameters))
     return "\n".join(out)
 
@@ -75,13 +76,15 @@ def _parameters_text(params) -> str:
     for name, p in params.ligands.items():
         lines.append(f"  {name}: e_σ {p.e_sigma_cm.value:,.0f} cm⁻¹ — {p.e_sigma_cm.source}")
         lines.append(f"  {name}: e_π {p.e_pi_cm.value:,.0f} cm⁻¹ — {p.e_pi_cm.source}")
-        lines.append(f"  {name}: h {p.h.value} — {p.h.source}; repulsion K {p.repulsion_cm.value:,.0f} cm⁻¹ — {p.repulsion_cm.source}")
+        lines.append(f"  {name}: h {p.h.value} — {p.h.source}; cone {p.cone_deg.value:.0f}° — {p.cone_deg.source}")
     lines.append(f"  metal: B {params.racah_b_cm.value:,.0f} cm⁻¹ — {params.racah_b_cm.source}")
     lines.append(f"  metal: C {params.racah_c_cm.value:,.0f} cm⁻¹ — {params.racah_c_cm.source}")
     lines.append(f"  metal: k {params.k.value} — {params.k.source}")
     lines.append(f"  nephelauxetic β = 1 − h̄·k = {params.beta:.3f}; pairing D = β·(7/6)(5B/2 + C) = {params.pairing_d_cm:,.0f} cm⁻¹")
     lines.append(f"  e_ds/e_σ {params.e_ds_ratio.value} — {params.e_ds_ratio.source}")
     lines.append(f"  e scale {params.e_scale.value} — {params.e_scale.source}")
+    lines.append(f"  repulsion: ε {params.steric_scale_cm.value:,.0f} cm⁻¹, n {params.steric_exponent.value:g}, "
+                 f"charge screening {params.screening.value:g} — {params.steric_scale_cm.source}")
     return "\n".join(lines)
 
 

@@ -28,7 +28,7 @@ import numpy as np
 
 from ..chem.complex import Complex
 from ..geometry.builder import build, build_path_point
-from ..geometry.isomers import isomers
+from ..geometry.isomers import isomers_of
 from ..geometry.polyhedra import TETRAHEDRAL_ANGLE_DEG
 
 TASKS = ("relax-held", "relax-free", "frequencies", "single-point", "path-point")
@@ -110,7 +110,7 @@ def complex_spec(cx: Complex) -> dict:
             custom[lig.name] = {
                 "symbols": list(lig.symbols), "positions_angstrom": np.round(lig.positions_angstrom, 6).tolist(),
                 "charge": lig.charge, "label": lig.label, "distance_angstrom": lig.distance_angstrom,
-                "f": lig.f.value, "pi_ratio": lig.pi_ratio.value, "h": lig.h.value, "repulsion_cm": lig.repulsion_cm.value,
+                "f": lig.f.value, "pi_ratio": lig.pi_ratio.value, "h": lig.h.value, "denticity": lig.denticity,
             }
     return {"metal": cx.metal.symbol, "oxidation_state": cx.oxidation_state,
             "ligands": [lig.name for lig in cx.ligands], "custom_ligands": custom}
@@ -207,11 +207,10 @@ def expand(study) -> list[Job]:
     max_steps = study.run.get("max_steps", 100)
     for entry in study.complexes:
         cx = entry.complex
-        names = tuple(lig.name for lig in cx.ligands)
         common = {"formula": cx.formula, "complex": complex_spec(cx), "charge": cx.charge, "max_steps": max_steps,
                   "engine": {}}
         for arrangement in entry.arrangements:
-            for isomer in isomers(names, arrangement):
+            for isomer in isomers_of(cx, arrangement):
                 atoms = build(cx, arrangement, isomer)
                 for spin2s in entry.spins:
                     for kind in study.relaxations:
@@ -219,7 +218,7 @@ def expand(study) -> list[Job]:
                         label = f"{cx.formula} {arrangement} {isomer.label} 2S={spin2s} {kind}".replace("  ", " ")
                         _state_chain(builder, study.level, base, atoms, label, study.frequencies)
         if study.path_points and "SP-4" in entry.arrangements:
-            for isomer in isomers(names, "SP-4"):
+            for isomer in isomers_of(cx, "SP-4"):
                 for angle in path_angles_deg(study.path_points):
                     atoms = build_path_point(cx, angle, isomer.label)
                     for spin2s in entry.spins:

@@ -22,6 +22,11 @@ xyz = "C 0 0 2.6\nC 0 0 1.14\nN 0 0 0"
 donor_index = 2
 charge = 0
 
+[ligands.pyim]                       # a chelate: donor_indices names its two donors
+xyz = "..."
+donor_indices = [0, 7]
+charge = 0
+
 [[complex]]
 formula = "[NiCl4]2-"
 spins = [0, 2]                       # optional: default every allowed 2S
@@ -60,7 +65,7 @@ _TOP_KEYS = {"title", "level", "solvent", "arrangements", "relaxations", "path_p
 DEFAULT_TEMPERATURE_K = 298.15
 DEFAULT_PRESSURE_BAR = 1.0
 _COMPLEX_KEYS = {"formula", "metal", "oxidation_state", "ligands", "charge", "spins", "arrangements", "estimate", "name"}
-_LIGAND_KEYS = {"xyz", "donor_index", "charge", "f", "pi_ratio", "h", "repulsion_cm", "label", "distance_angstrom"}
+_LIGAND_KEYS = {"xyz", "donor_index", "donor_indices", "charge", "f", "pi_ratio", "h", "label", "distance_angstrom"}
 _RUN_KEYS = {"workers", "timeout_s", "max_steps", "threads"}
 _CLUSTER_REQUIRED = {"cores", "memory", "walltime"}
 _CLUSTER_KEYS = _CLUSTER_REQUIRED | {"queue", "account", "jobs"}
@@ -141,17 +146,26 @@ def _ligands(path, table) -> dict[str, Ligand]:
     found = {}
     for name, spec in table.items():
         where = f"ligands.{name}"
-        _expect(path, where, spec, dict, "a table with xyz, donor_index and charge")
+        _expect(path, where, spec, dict, "a table with xyz, donor_index (or a chelate's donor_indices) and charge")
         _unknown_keys(path, where, spec, _LIGAND_KEYS)
-        for key in ("xyz", "donor_index", "charge"):
+        if "donor_index" in spec and "donor_indices" in spec:
+            raise _fail(path, where, "give donor_index (one donor) or donor_indices (a chelate's two), not both")
+        donors_key = "donor_indices" if "donor_indices" in spec else "donor_index"
+        for key in ("xyz", donors_key, "charge"):
             if key not in spec:
-                raise _fail(path, where, f"missing '{key}' (a custom ligand needs xyz, donor_index and charge)")
+                raise _fail(path, where, f"missing '{key}' (a custom ligand needs xyz, donor_index — or donor_indices "
+                                         "for a chelate — and charge)")
         _expect(path, f"{where}.xyz", spec["xyz"], str, "an XYZ block as a string ('Symbol x y z' lines, Å)")
-        _expect(path, f"{where}.donor_index", spec["donor_index"], int, "an integer (0-based atom index)")
+        if donors_key == "donor_index":
+            _expect(path, f"{where}.donor_index", spec["donor_index"], int, "an integer (0-based atom index)")
+        elif not (isinstance(spec["donor_indices"], list) and len(spec["donor_indices"]) == 2
+                  and all(type(i) is int for i in spec["donor_indices"])):
+            raise _fail(path, f"{where}.donor_indices", f"must be two 0-based atom indices such as [0, 7], "
+                                                        f"got {spec['donor_indices']!r}")
         _expect(path, f"{where}.charge", spec["charge"], int, "an integer")
-        extra = {k: v for k, v in spec.items() if k not in ("xyz", "donor_index", "charge")}
+        extra = {k: v for k, v in spec.items() if k not in ("xyz", donors_key, "charge")}
         try:
-            found[name] = custom_ligand(name, spec["xyz"], spec["donor_index"], spec["charge"], **extra)
+            found[name] = custom_ligand(name, spec["xyz"], spec[donors_key], spec["charge"], **extra)
         except InputError as error:
             raise _fail(path, where, str(error)) from None
     return found
