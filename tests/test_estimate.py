@@ -161,8 +161,8 @@ def test_overrides_change_the_answer_and_are_labelled():
 @pytest.mark.parametrize("formula", ["[HgCl4]2-", "[Hg(CN)4]2-", "[Cd(CN)4]2-", "[Zn(CN)4]2-", "[ZnCl4]2-"])
 def test_d10_ions_are_tetrahedral_with_no_ligand_field_term(formula):
     # Zn(II), Cd(II), Hg(II) tetrahalo and tetracyano complexes are tetrahedral (Greenwood & Earnshaw 1997,
-    # ch. 29, from memory); a filled d shell has no ligand-field stabilisation in any arrangement (REFERENCES.md
-    # §3, d10 row [P]), however strong the d–s mixing
+    # ch. 29, from memory); a filled d shell has no ligand-field stabilisation in any arrangement
+    # (docs/sources.md#textbook-cfse, d10 row; common practice, no source), however strong the d–s mixing
     cx = complex_from_formula(formula)
     for ratio in (0.2, 0.5):
         result = estimate(cx, overrides={"e_ds_ratio": ratio})

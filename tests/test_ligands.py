@@ -4,7 +4,8 @@ builds without clashes, held relaxations that keep the arrangement but not the b
 import numpy as np
 import pytest
 from fourfold.chem.complex import complex_from_formula
-from fourfold.chem.library import hill_formula, ligand_entry, ligand_table, ligands_text
+from fourfold.field.ligand_library import hill_formula, ligand_entry, ligand_table
+from fourfold.report.text import ligands_text
 from fourfold.chem.ligands import bundled_ligands, custom_ligand
 from fourfold.errors import InputError
 from fourfold.geometry.builder import build, build_all, build_path_point, clashes
@@ -29,7 +30,7 @@ def test_library_has_the_ligands_chemists_use():
     assert {n: ligands[n].charge for n in ("OAc", "acac", "dmg", "ox", "en", "dppe")} == {
         "OAc": -1, "acac": -1, "dmg": -1, "ox": -2, "en": 0, "dppe": 0}
     assert ligands["CNMe"].donor == "C" and ligands["MeCN"].donor == "N" and ligands["dppe"].donors == ("P", "P")
-    # Jørgensen 1971, pp. 347–348 (REFERENCES.md §4 [V]): f(en) 1.28, f(bipy) 1.33
+    # Jørgensen 1971, pp. 347–348 (docs/sources.md#jorgensen1971-ligand-field): f(en) 1.28, f(bipy) 1.33
     assert ligands["en"].f.value == 1.28 and ligands["bipy"].f.value == 1.33
     for name in MONODENTATE + CHELATES:
         assert "GFN2-xTB" in ligands[name].geometry_source
@@ -211,7 +212,7 @@ def test_custom_chelate_through_a_recipe_reaches_the_worker():
 
     study = parse_recipe(CHELATE_RECIPE)
     jobs = expand(study)
-    assert {(j.spec["arrangement"], j.spec["isomer"]) for j in jobs} == {("T-4", ""), ("SP-4", "")}
+    assert {(j.spec.arrangement, j.spec.isomer) for j in jobs} == {("T-4", ""), ("SP-4", "")}
     cx = complex_from_spec(jobs[0].spec)
     assert cx.ligands[0].denticity == 2 and cx.ligands[0].f.value == 1.3
     _, atoms = start_structure(jobs[0].spec, None)

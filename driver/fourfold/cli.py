@@ -72,7 +72,8 @@ def _print_cautions(complexes) -> None:
               help="Arrangement to estimate (repeatable); default T-4 and SP-4.")
 @click.option("--set", "overrides", multiple=True, metavar="KEY=VALUE",
               help="Override a parameter: LIGAND.e_sigma, LIGAND.e_pi (cm-1), LIGAND.f, LIGAND.pi_ratio, LIGAND.h, "
-                   "LIGAND.repulsion (cm-1), metal.B, metal.C (cm-1), metal.g (kK), metal.k, e_ds_ratio, e_scale.")
+                   "LIGAND.cone (degrees), metal.B, metal.C (cm-1), metal.g (kK), metal.k, e_ds_ratio, e_scale, "
+                   "steric_scale, steric_exponent, screening.")
 @click.option("--spin", "spins", multiple=True, type=int, metavar="2S",
               help="Spin state as 2S (number of unpaired electrons; repeatable); default all allowed.")
 @click.option("--json", "as_json", is_flag=True, help="Print the estimate as JSON.")
@@ -302,6 +303,22 @@ def status(folder, as_json, store_url):
         click.echo(json.dumps(found, indent=2, ensure_ascii=False))
     else:
         click.echo(status_text(found))
+
+
+@main.command()
+@click.argument("name", required=False)
+@click.option("--json", "as_json", is_flag=True, help="Print as JSON.")
+def ligands(name, as_json):
+    """List the ligand library, or one ligand NAME (a name or alias, e.g. 'P(t-Bu)3'): formula, denticity,
+    donors, charge, e_σ/e_π with sources, cone angle (computed, and Tolman's where published), bite angle."""
+    from .field.ligand_library import ligand_entry, ligand_table
+    from .report.text import ligands_text
+
+    rows = [ligand_entry(name)] if name else ligand_table()
+    if as_json:
+        click.echo(json.dumps(rows[0] if name else rows, indent=2, ensure_ascii=False))
+    else:
+        click.echo(ligands_text(rows))
 
 
 if __name__ == "__main__":  # pragma: no cover

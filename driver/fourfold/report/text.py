@@ -138,3 +138,39 @@ def report_text(report) -> str:
     unit = energy_unit(report.unit).name
     summary = to_text(summary_table(report.comparison, unit), skip_notes=report.comparison.warnings)
     return "\n".join([comparison_text(report.comparison, unit), "Summary", summary, report.summary_line()]) + "\n"
+
+
+def ligands_text(rows: list[dict]) -> str:
+    """The ligand library (fourfold.field.ligand_library rows) as a terminal table; the sources of f and of the
+    published cone angles as numbered notes."""
+    from ..chem.metals import get_metal
+    from ..field.ligand_library import REFERENCE_ION
+
+    sources: dict[str, int] = {}
+
+    def mark(pair: dict | None) -> str:
+        return "" if pair is None else f" [{sources.setdefault(pair['source'], len(sources) + 1)}]"
+
+    metal, charge = REFERENCE_ION
+    columns = [Column("name", "ligand", ""), Column("formula", "formula", ""), Column("denticity", "dent.", ""),
+               Column("donors", "donors", ""), Column("charge", "charge", ""),
+               Column("e", f"e_σ / e_π at {metal}({charge:+d}) / cm⁻¹", ""), Column("f", "f", ""),
+               Column("cone", "cone / °", ""), Column("tolman", "Tolman / °", ""),
+               Column("bite_angle_deg", "bite / °", "", "number", 1)]
+    body = []
+    for row in rows:
+        published = row["published_cone_angle_deg"]
+        body.append({
+            "name": row["name"], "formula": row["formula"], "denticity": str(row["denticity"]),
+            "donors": ",".join(row["donors"]), "charge": f"{row['charge']:+d}",
+            "e": f"{row['e_sigma_ni2_cm']['value']:,.0f} / {row['e_pi_ni2_cm']['value']:,.0f}",
+            "f": f"{row['f']['value']:g}{mark(row['f'])}",
+            "cone": " / ".join(f"{x:.0f}" for x in row["cone_angle_deg"]),
+            "tolman": None if published is None else f"{published['value']:.0f}{mark(published)}",
+            "bite_angle_deg": row["bite_angle_deg"]})
+    g_kk = get_metal(metal).g(charge).value
+    notes = [f"e_σ, e_π: Δ = 1.5·f·g with g({metal}({charge:+d})) = {g_kk} kK, Δ = 3e_σ − 4e_π, e_π = pi_ratio·e_σ. "
+             "Cone: exact cone about the M–donor axis of the built fragment, M–donor 2.28 Å, Bondi radii, per donor "
+             "for chelates; Tolman: published. Bite: D–M–D at the start M–donor distance."]
+    notes += [f"[{number}] {source}" for source, number in sources.items()]
+    return to_text(Table("ligands", "fourfold's ligand library", columns, body, notes), title=False)

@@ -18,11 +18,8 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[_name] = "1"
 
 import argparse  # noqa: E402
-import sys  # noqa: E402
 from itertools import product  # noqa: E402
-from pathlib import Path  # noqa: E402
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "driver"))
 
 import numpy as np  # noqa: E402
 

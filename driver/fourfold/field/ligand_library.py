@@ -11,8 +11,8 @@ from __future__ import annotations
 from collections import Counter
 
 from ..geometry.cone import donor_cone_angles_deg
-from .ligands import Ligand, bundled_ligands, covalent_radius_angstrom, ligand_lookup, unknown_ligand_error
-from .metals import Sourced, get_metal
+from ..chem.ligands import Ligand, bundled_ligands, covalent_radius_angstrom, ligand_lookup, unknown_ligand_error
+from ..chem.metals import Sourced, get_metal
 
 REFERENCE_ION = ("Ni", 2)
 
@@ -44,7 +44,7 @@ def ligand_table(extra: dict[str, Ligand] | None = None) -> list[dict]:
 
 
 def _entry(ligand: Ligand) -> dict:
-    from ..field.estimate import DEFAULT_E_SCALE, e_parameters_cm, steric_cone_deg
+    from .estimate import DEFAULT_E_SCALE, e_parameters_cm, steric_cone_deg
 
     metal = get_metal(REFERENCE_ION[0])
     e_sigma, e_pi = e_parameters_cm(ligand.f, ligand.pi_ratio, metal.g(REFERENCE_ION[1]), DEFAULT_E_SCALE)
@@ -69,39 +69,3 @@ def _entry(ligand: Ligand) -> dict:
         "geometry": ligand.geometry_source,
         "atoms": len(ligand.symbols),
     }
-
-
-def ligands_text(rows: list[dict]) -> str:
-    """The library as a monospace table; the sources of f, pi_ratio and the published cone angles as notes."""
-    notes: dict[str, int] = {}
-
-    def mark(pair: dict | None) -> str:
-        if pair is None:
-            return ""
-        return f"[{notes.setdefault(pair['source'], len(notes) + 1)}]"
-
-    headers = ["ligand", "formula", "dent.", "donors", "charge", "e_σ / e_π at Ni²⁺ (cm⁻¹)", "f", "cone (°)",
-               "Tolman (°)", "bite (°)"]
-    body = []
-    for row in rows:
-        published = row["published_cone_angle_deg"]
-        body.append([
-            row["name"], row["formula"], str(row["denticity"]), ",".join(row["donors"]), f"{row['charge']:+d}",
-            f"{row['e_sigma_ni2_cm']['value']:,.0f} / {row['e_pi_ni2_cm']['value']:,.0f}",
-            f"{row['f']['value']:g} {mark(row['f'])}",
-            " / ".join(f"{x:.0f}" for x in row["cone_angle_deg"]),
-            "" if published is None else f"{published['value']:.0f} {mark(published)}",
-            "" if row["bite_angle_deg"] is None else f"{row['bite_angle_deg']:.1f}",
-        ])
-    widths = [max(len(x) for x in column) for column in zip(headers, *body)]
-
-    def line(cells) -> str:
-        return "  ".join(cell.ljust(width) for cell, width in zip(cells, widths)).rstrip()
-
-    g = get_metal(REFERENCE_ION[0]).g(REFERENCE_ION[1]).value
-    lines = [line(headers), line(["-" * w for w in widths]), *(line(cells) for cells in body), ""]
-    lines.append(f"e_σ, e_π: Δ = 1.5·f·g with g(Ni²⁺) = {g} kK, Δ = 3e_σ − 4e_π, e_π = pi_ratio·e_σ (fourfold.field.estimate). "
-                 "Cone: exact cone about the M–donor axis of the built fragment, M–donor 2.28 Å, Bondi radii, "
-                 "per donor for chelates; Tolman: published. Bite: D–M–D at the start M–donor distance.")
-    lines += [f"[{number}] {source}" for source, number in notes.items()]
-    return "\n".join(lines)
