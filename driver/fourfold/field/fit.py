@@ -75,6 +75,18 @@ def _models(directions, names, kinds, ratios):
     return [(shift + free + [("ds", _upper(_ds_matrix(unit)))], False), (shift + free, False), (shift + tied, True)]
 
 
+def _determined_model(models):
+    """(labels, design, tied, condition number) of the fullest model whose design is well conditioned, else of the
+    smallest one (which the caller withholds)."""
+    chosen = None
+    for columns, tied in models:
+        design = np.column_stack([column for _, column in columns])
+        chosen = [label for label, _ in columns], design, tied, _condition(design)
+        if chosen[3] <= CONDITION_LIMIT:
+            break
+    return chosen
+
+
 def _describe(kinds) -> str:
     return ", ".join(f"e_σ({k})" for k in kinds)
 
@@ -89,13 +101,8 @@ def fit_aom(matrix_cm: np.ndarray, directions: np.ndarray, ligand_names, pi_rati
     ratios = pi_ratios or {}
     matrix_cm = np.asarray(matrix_cm, dtype=float)
     target = _upper(matrix_cm)
-    for columns, tied in _models(directions, names, kinds, ratios):
-        labels = [label for label, _ in columns]
-        design = np.column_stack([column for _, column in columns])
-        condition = _condition(design)
-        if condition <= CONDITION_LIMIT:
-            break
-    else:
+    labels, design, tied, condition = _determined_model(_models(directions, names, kinds, ratios))
+    if condition > CONDITION_LIMIT:
         return AomFit({}, {}, None, None, None, True, condition,
                       withheld=f"ill-conditioned (condition number {condition:.0f} > {CONDITION_LIMIT:.0f} even with "
                                f"e_π tied and no e_ds): the d block does not separate {_describe(kinds)}")

@@ -304,8 +304,8 @@ def ligand_field_table(comparison) -> Table:
                     "e_sigma_estimate_cm-1": p.e_sigma_cm.value, "e_pi_estimate_cm-1": p.e_pi_cm.value,
                     "fit_rms_cm-1": None if record is None else record.fit_rms_cm,
                     "fit_condition_number": None if record is None else record.fit_condition_number,
-                    "fit_note": None if record is None else (
-                        f"withheld: {withheld}" if withheld else _fit_remark(record, name, e_sigma, p.e_sigma_cm.value)),
+                    "fit_note": None if record is None else (f"withheld: {withheld}" if withheld else
+                                                             _fit_remark(record, name, e_sigma, p.e_sigma_cm.value)),
                     "e_sigma_source": p.e_sigma_cm.source,
                 })
     notes = [f"Fits: bounded least squares (e_σ ≥ 0) to the Kohn–Sham d block projected on the metal, of only the "
