@@ -124,7 +124,8 @@ def d_levels_title(c) -> str:
 
 def d_levels_notes(c, has_dft: bool) -> list[str]:
     if not has_dft:
-        return [f"no projected DFT d levels at level {c.level} (GFN2-xTB has none): estimate only"]
+        why = "GFN2-xTB has none" if _is_xtb(c.records) else "no computed state carries them"
+        return [f"no projected DFT d levels at level {c.level} ({why}): estimate only"]
     notes = ["DFT: d-dominated Kohn–Sham levels projected on the metal; electrons by aufbau for the state's 2S"]
     if any(r.broken_symmetry and r.d_levels_cm for r in c.held_or_free()):
         notes.append("BS: broken-symmetry singlet, its two unpaired electrons drawn with opposite spins on "

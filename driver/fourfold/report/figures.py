@@ -99,6 +99,13 @@ def _new_figure(width_in: float, height_in: float):
     return fig
 
 
+def _settle(fig) -> None:
+    """Lay the figure out: constrained layout moves the axes by a few pixels between the first and second draw
+    (measured), so anything placed in pixels waits for the second."""
+    fig.canvas.draw()
+    fig.canvas.draw()
+
+
 def _width(columns: int) -> float:
     return DOUBLE_COLUMN_IN if columns == 2 else SINGLE_COLUMN_IN
 
@@ -179,6 +186,7 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str
         span = (max(values) - min(values)) if values else 1.0
         gap = 0.06 * (span or 1.0)
         labels = []
+        between = {}  # gap after group i -> [(label, energy)]: group i's estimates and group i+1's computed levels
         for i, group in enumerate(groups):
             for side, table in ((-1, computed), (1, estimated)):
                 keys = [(*group, s) for s in spins if table.get((*group, s)) is not None]
@@ -190,11 +198,12 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str
                     ax.plot([x0, x1], [energy, energy], color=spin_colour(key[2]), lw=2.0, solid_capstyle="butt",
                             gid=f"{'calc' if side < 0 else 'est'}:{_group_label(group)}:{key[2]}")
                 label_x = x0 - 0.025 if side < 0 else x1 + 0.025
-                for key, y in zip(keys, _spread(energies, gap)):
+                for key, y, energy in zip(keys, _spread(energies, gap), energies):
                     mark = marks.get(key, "") if side < 0 else ""
                     labels.append(ax.text(label_x, y, f"{key[2] + 1}{mark}", color=spin_colour(key[2]), fontsize=6.5,
                                           fontweight="bold", ha="right" if side < 0 else "left", va="center",
                                           gid=DATA_LABEL))
+                    between.setdefault(i - 1 if side < 0 else i, []).append((labels[-1], energy))
             for s in spins:  # correlation lines: the same state, computed and estimated
                 a, b = computed.get((*group, s)), estimated.get((*group, s))
                 if a is not None and b is not None:
@@ -218,12 +227,28 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str
         if style == "annotated":
             ax.set_title(captions.ladder_title(c), loc="left")
             _caveats(fig, captions.ladder_notes(c, warnings))
-        fig.canvas.draw()  # lay out, then widen the x range just enough for the outermost labels
+        _settle(fig)  # lay out, then widen the x range just enough for the outermost labels
         left = [t for t in labels if t.get_position()[0] < 0]
         right = [t for t in labels if t.get_position()[0] > len(groups) - 1]
         if left:
             _fit_labels(ax, left, right, len(groups) - 1 + inner + width)
+        _part_neighbours(ax, [between[g] for g in range(len(groups) - 1) if g in between])
     return fig
+
+
+def _part_neighbours(ax, gaps) -> None:
+    """Labels facing each other across the space between two groups: where any two meet, that space's labels
+    are spread together by their heights (each as near its level as the others allow)."""
+    fig = ax.figure
+    renderer = fig.canvas.get_renderer()
+    _settle(fig)
+    per_px = np.ptp(ax.get_ylim()) / ax.get_window_extent(renderer).height
+    for placed in gaps:
+        boxes = [label.get_window_extent(renderer) for label, _ in placed]
+        if any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:]):
+            height = 1.15 * max(box.height for box in boxes) * per_px
+            for (label, _), y in zip(placed, _spread([energy for _, energy in placed], height)):
+                label.set_y(y)
 
 
 # ---- d-orbital splitting -------------------------------------------------------------------------------
@@ -339,8 +364,8 @@ def _electrons(occupation, broken_symmetry: bool) -> list[list[int]]:
 
 
 def _draw_levels(ax, x_centre, column: _Column, electrons, colour, label_side) -> list:
-    """One column of d levels: bars, electrons as arrows (inside their bar), one label per row beside it at the
-    row's height naming its levels in bar order; returns the labels."""
+    """One column of d levels: bars, electrons as arrows (inside their bar), one label per row naming its levels
+    in bar order, level with the row's outer bar beside it; returns the labels."""
     from matplotlib.patches import FancyArrowPatch
 
     width, length = LEVEL_WIDTH, column.arrow_len
@@ -356,8 +381,9 @@ def _draw_levels(ax, x_centre, column: _Column, electrons, colour, label_side) -
                 for dx, spin in zip((0.0,) if len(spins) == 1 else (-width / 4.5, width / 4.5), spins):
                     ax.add_patch(FancyArrowPatch((x + dx, y - spin * length / 2), (x + dx, y + spin * length / 2),
                                                  arrowstyle="-|>,head_length=0.45,head_width=0.2", mutation_scale=6.0,
-                                                 lw=0.7, color="black", shrinkA=0, shrinkB=0, gid="electron"))
-        y_row = float(np.mean([column.heights[k] for k in row]))
+                                                 lw=0.7, color="black", shrinkA=0, shrinkB=0,
+                                                 gid="electron-up" if spin > 0 else "electron-down"))
+        y_row = column.heights[row[-1] if label_side > 0 else row[0]]  # level with the bar next to the label
         label = ax.text(x_centre + label_side * (half_width + LABEL_PAD), y_row, name, fontsize=LEVEL_FONT_PT,
                         ha="left" if label_side > 0 else "right", va="center", gid=DATA_LABEL)
         label.set_in_layout(False)  # _fit_labels makes room inside the panel; the layout must not shrink it first
@@ -455,7 +481,7 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
             ax.spines["bottom"].set_visible(False)
             ax.set_xticks([0.0], ["AOM est."])  # the final ticks' row of text, for the layout below
         tolerance, arrow, row_gap = max(0.05, 0.02 * span), 0.07 * span, 0.085 * span
-        fig.canvas.draw()  # the panels' widths, for the gap between columns
+        _settle(fig)  # the panels' widths, for the gap between columns
         fitting = []
         for ax, (group, state, record) in zip(axes, panels):
             est_k = np.asarray(state.levels_cm) / 1000
@@ -479,7 +505,7 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
         if style == "annotated":
             fig.suptitle(captions.d_levels_title(c), fontsize=8, x=0.0, ha="left")
             _caveats(fig, captions.d_levels_notes(c, any(r for _, _, r in panels)))
-        fig.canvas.draw()  # lay the panels out, then size each one's x range to its labels
+        _settle(fig)  # lay the panels out, then size each one's x range to its labels
         for ax, left, right, edge in fitting:
             _fit_labels(ax, left, right, edge)
     return fig
@@ -513,7 +539,7 @@ def _place_labels(ax, points, texts, obstacles=(), keep_out=None, first=()):
     first; the labels come back in the order of ``points``."""
     fig = ax.figure
     renderer = fig.canvas.get_renderer()
-    fig.canvas.draw()
+    _settle(fig)
     point_boxes = _point_boxes(ax, points)  # a margin round each point: no label covers a point
     centres = [ax.transData.transform(p) for p in points]
     axes_box = ax.get_window_extent(renderer)
@@ -547,6 +573,7 @@ def _place_labels(ax, points, texts, obstacles=(), keep_out=None, first=()):
             artist = ax.annotate(texts[i], points[i], xytext=offset, textcoords="offset points", ha=ha, va=va,
                                  fontsize=6.5, gid=DATA_LABEL,
                                  arrowprops=dict(arrowstyle="-", lw=0.4, color=_GREY, shrinkA=1, shrinkB=3))
+        artist.set_in_layout(False)  # placed for this layout: it must not change it
         placed.append(bounds)
         artists[i] = artist
     return [artists[i] for i in range(len(points))]
@@ -574,7 +601,7 @@ _QUADRANT_CORNERS = {"both:\nT-4 lower": [((0.52, 0.98), "left", "top"), ((0.98,
 def _quadrant_captions(ax, points, keep_out) -> list:
     """Name the two grey quadrants, each in the corner where it covers no point and stays out of the band."""
     fig = ax.figure
-    fig.canvas.draw()
+    _settle(fig)
     renderer = fig.canvas.get_renderer()
     boxes = _point_boxes(ax, points)
     placed = []
@@ -582,7 +609,7 @@ def _quadrant_captions(ax, points, keep_out) -> list:
         best = None
         for position, ha, va in corners:
             artist = ax.text(*position, text, transform=ax.transAxes, ha=ha, va=va, fontsize=6.5, color=_GREY,
-                             linespacing=1.0)
+                             linespacing=1.0, in_layout=False)
             box = artist.get_window_extent(renderer)
             bounds = (box.x0, box.y0, box.x1, box.y1)
             score = sum(_overlap(bounds, other) for other in boxes) + (1e5 if keep_out(bounds) else 0.0)
@@ -620,6 +647,16 @@ def parity_points(comparison) -> list[tuple[str, float, float, bool | None]]:
     return points
 
 
+def _half_step_limit(reach: float) -> float:
+    """A symmetric axis limit at least ``reach``, half a tick step beyond the outermost tick, so the x and y tick
+    labels at the shared corner never meet."""
+    from matplotlib.ticker import MaxNLocator
+
+    ticks = MaxNLocator(nbins=6, steps=[1, 2, 2.5, 5, 10]).tick_values(-reach, reach)
+    step = float(ticks[1] - ticks[0])
+    return (np.ceil(reach / step - 0.5) + 0.5) * step
+
+
 def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: float = AGREEMENT_BAND_KJ_MOL,
                   style: str = "annotated"):
     """Estimated against computed ΔE(SP-4 − T-4) per complex; None when no complex has both numbers. Labels stay
@@ -640,7 +677,8 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
         fig = _new_figure(width, width * 0.92 if columns == 1 else 4.2)
         ax = fig.add_subplot()
         reach = max(float(np.max(np.abs(np.concatenate([xs, ys])))), 2 * band) * 1.3  # room for labels at the edge
-        lo, hi = -reach, reach
+        hi = _half_step_limit(reach)
+        lo = -hi
         ax.fill_between([0, hi], 0, hi, color="#e8e8e8", lw=0, zorder=0)
         ax.fill_between([lo, 0], lo, 0, color="#e8e8e8", lw=0, zorder=0)
         ax.fill_between([lo, hi], [lo - band, hi - band], [lo + band, hi + band], color=OKABE_ITO["sky blue"],
