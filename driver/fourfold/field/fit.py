@@ -10,10 +10,10 @@ e_ds), then without e_ds, then e_π tied to e_σ by the ligand's default pi_rati
 matrix is well conditioned is kept: in T-4 only Δt is seen, and a slightly distorted tetrahedron is nearly
 as blind (its full design is formally of full rank but its condition number is ~10², and an unconstrained fit
 then returns e_σ of either sign in the tens of thousands of cm⁻¹). e_σ and e_ds are bounded at zero (σ donors
-raise the d levels; e_ds lowers z² by definition) by a bounded least-squares solve; e_π keeps its sign free
-(π acceptors have e_π < 0). A fit is withheld, with the reason, when even the smallest model is ill
-conditioned or the angular-overlap form does not describe the d block (rms residual above a stated fraction
-of the d-level spread).
+raise the d levels; e_ds lowers z² by definition) by a bounded least-squares solve; e_π keeps the sign of the
+ligand's π character (π acceptors have e_π < 0). A fit is withheld, with the reason, when
+even the smallest model is ill conditioned, the angular-overlap form does not describe the d block (rms residual
+above a stated fraction of the d-level spread), a σ donor's e_σ ends at the bound, or |e_π| exceeds e_σ.
 """
 
 from __future__ import annotations
@@ -87,6 +87,23 @@ def _determined_model(models):
     return chosen
 
 
+def _bounds(labels, ratios) -> tuple[np.ndarray, np.ndarray]:
+    """e_σ ≥ 0 and e_ds ≥ 0; e_π keeps the sign of the ligand's π character (its default pi_ratio: π donors
+    ≥ 0, π acceptors ≤ 0; free where the ratio is zero or unknown); the shift is free."""
+    lower, upper = [], []
+    for label in labels:
+        ratio = ratios.get(label[1], 0.0) if isinstance(label, tuple) and label[0] == "pi" else 0.0
+        if label == "ds" or label[0] == "sigma":
+            lower.append(0.0), upper.append(np.inf)
+        elif label[0] == "pi" and ratio > 0:
+            lower.append(0.0), upper.append(np.inf)
+        elif label[0] == "pi" and ratio < 0:
+            lower.append(-np.inf), upper.append(0.0)
+        else:
+            lower.append(-np.inf), upper.append(np.inf)
+    return np.array(lower), np.array(upper)
+
+
 def _describe(kinds) -> str:
     return ", ".join(f"e_σ({k})" for k in kinds)
 
@@ -106,23 +123,36 @@ def fit_aom(matrix_cm: np.ndarray, directions: np.ndarray, ligand_names, pi_rati
         return AomFit({}, {}, None, None, None, True, condition,
                       withheld=f"ill-conditioned (condition number {condition:.0f} > {CONDITION_LIMIT:.0f} even with "
                                f"e_π tied and no e_ds): the d block does not separate {_describe(kinds)}")
-    lower = np.array([0.0 if label == "ds" or label[0] == "sigma" else -np.inf for label in labels])
-    solved = lsq_linear(design, target, bounds=(lower, np.inf), method="bvls")
+    lower, upper = _bounds(labels, ratios)
+    solved = lsq_linear(design, target, bounds=(lower, upper), method="bvls")
     solution = solved.x
-    at_bound = tuple(_name(label) for label, active in zip(labels, solved.active_mask) if active < 0)
+    at_bound = tuple(_name(label) for label, active in zip(labels, solved.active_mask) if active != 0)
     rms = float(np.sqrt(np.mean((design @ solution - target) ** 2)))
     values = dict(zip(labels, (float(v) for v in solution)))
     e_sigma = {k: values[("sigma", k)] for k in kinds}
     e_pi = {k: e_sigma[k] * ratios.get(k, 0.0) for k in kinds} if tied else {k: values[("pi", k)] for k in kinds}
-    spread = float(np.ptp(np.linalg.eigvalsh(matrix_cm)))
-    if rms > RESIDUAL_LIMIT_FRACTION * spread:
-        reason = (f"poor fit (rms residual {rms:.0f} cm⁻¹ > {100 * RESIDUAL_LIMIT_FRACTION:.0f} % of the "
-                  f"{spread:.0f} cm⁻¹ d-level spread)")
-        if at_bound:
-            reason += f" with {', '.join(at_bound)} held at 0"
-        return AomFit({}, {}, None, None, rms, tied, condition, withheld=f"{reason}: the AOM form does not describe "
-                                                                         "this d block", at_bound=at_bound)
+    problems = _unphysical(rms, float(np.ptp(np.linalg.eigvalsh(matrix_cm))), e_sigma, e_pi, at_bound)
+    if problems:
+        return AomFit({}, {}, None, None, rms, tied, condition, withheld="; ".join(problems), at_bound=at_bound)
     return AomFit(e_sigma, e_pi, values.get("ds"), values["shift"], rms, tied, condition, at_bound=at_bound)
+
+
+def _unphysical(rms, spread, e_sigma, e_pi, at_bound) -> list[str]:
+    """Why a bounded fit still does not describe the block: a poor fit, a σ donor left without σ bonding (its
+    e_σ held at the bound), or a π interaction stronger than the σ one (π overlap is the smaller; Schäffer &
+    Jørgensen 1965)."""
+    found = []
+    if rms > RESIDUAL_LIMIT_FRACTION * spread:
+        found.append(f"poor fit (rms residual {rms:.0f} cm⁻¹ > {100 * RESIDUAL_LIMIT_FRACTION:.0f} % of the "
+                     f"{spread:.0f} cm⁻¹ d-level spread): the AOM form does not describe this d block")
+    pinned = [k for k in e_sigma if f"e_σ({k})" in at_bound]
+    if pinned:
+        found.append(f"{', '.join(f'e_σ({k})' for k in pinned)} held at 0 by the bound: the unbounded fit makes "
+                     f"{'it' if len(pinned) == 1 else 'them'} negative")
+    strong_pi = [k for k in e_sigma if abs(e_pi[k]) > e_sigma[k] and k not in pinned]
+    if strong_pi:
+        found.append(f"|e_π| > e_σ for {', '.join(strong_pi)}")
+    return found
 
 
 def _name(label) -> str:

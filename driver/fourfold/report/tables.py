@@ -326,14 +326,14 @@ FIT_ESTIMATE_RATIO_FLAG = 2.0  # a fitted e_σ beyond this factor of the estimat
 
 
 def _fit_withheld(record) -> str | None:
-    """Why a state's fit is not shown: the fit's own reason, or a negative e_σ from a store written before fits
-    were bounded."""
+    """Why a state's fit is not shown: the fit's own reason, or a fit stored before fits were bounded and checked
+    (no condition number), negative e_σ named."""
     if record.fit_withheld:
         return record.fit_withheld
-    negative = sorted(k for k, v in (record.fitted_e_sigma_cm or {}).items() if v < 0)
-    if negative:
-        return (f"negative e_σ ({', '.join(negative)}), unphysical: an unbounded fit stored by an earlier fourfold; "
-                "compute the state again for a bounded one")
+    if record.fit_condition_number is None:
+        negative = sorted(k for k, v in (record.fitted_e_sigma_cm or {}).items() if v < 0)
+        return ((f"negative e_σ ({', '.join(negative)}); " if negative else "")
+                + "an unchecked fit stored by an earlier fourfold (no condition number): compute the state again")
     return None
 
 
