@@ -300,14 +300,14 @@ def _mathtext(names: list[str]) -> str:
     for name in names:
         primes = len(name) - len(name.rstrip("'"))
         text = orbital_mathtext(name.rstrip("'"))
-        pieces.append(text[:-1] + "'" * primes + "$" if primes else text)
+        pieces.append(text + "′" * primes)  # after the subscript, not over it
     return ", ".join(pieces)
 
 
 LEVEL_WIDTH, LEVEL_SPACE = 0.26, 0.07  # one d level's bar and the gap beside it, in panel x units
 LABEL_PAD = 0.05  # between a row's outer bar and its label, panel x units
 MIN_COLUMN_GAP = 0.35  # between the estimate and DFT columns, panel x units
-LEVEL_FONT_PT = 6.5
+LEVEL_FONT_PT, PANEL_FONT_PT = 6.5, 7.5
 
 
 @dataclass(frozen=True)
@@ -392,7 +392,7 @@ def _draw_levels(ax, x_centre, column: _Column, electrons, colour, label_side) -
 
 
 def _widest_px(ax, strings, fontsize) -> float:
-    """Width in display pixels of the widest of ``strings`` as they would be drawn on ``ax``."""
+    """Width in display pixels of the widest of ``strings`` as they would be drawn on ``ax`` (or a figure)."""
     renderer = ax.figure.canvas.get_renderer()
     widest = 0.0
     for text in strings:
@@ -400,6 +400,20 @@ def _widest_px(ax, strings, fontsize) -> float:
         widest = max(widest, probe.get_window_extent(renderer).width)
         probe.remove()
     return widest
+
+
+COLUMN_PT_PER_UNIT = 50.0  # a panel's width per x unit of its columns when laid out: a bar 13 pt long
+
+
+def _panel_need_pt(fig, est: _Column, dft: _Column | None, name: str, pad_pt: float = 4.5) -> float:
+    """Width a panel needs (points): its level labels and its columns at COLUMN_PT_PER_UNIT, and at least its name."""
+    to_pt = 72.0 / fig.dpi
+    units = 2 * est.half_width + 2 * LABEL_PAD
+    labels = _widest_px(fig, est.names, LEVEL_FONT_PT) * to_pt + 2 * pad_pt
+    if dft is not None:
+        units += MIN_COLUMN_GAP + 2 * dft.half_width
+        labels += _widest_px(fig, dft.names, LEVEL_FONT_PT) * to_pt
+    return max(labels + units * COLUMN_PT_PER_UNIT, _widest_px(fig, [name], PANEL_FONT_PT) * to_pt + 2 * pad_pt)
 
 
 def _column_gap(ax, est: _Column, dft: _Column, tick_names, pad_px: float = 6.0) -> float:
@@ -450,6 +464,10 @@ def _dft_electrons(d_electrons: int, record) -> list[list[int]]:
     return _electrons(_aufbau(d_electrons, record.spin2s), False)
 
 
+def _panel_name(group, state) -> str:
+    return f"{_group_label(group)}, {multiplicity_word(state.spin2s)}"
+
+
 def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
     """Per arrangement × isomer: AOM estimate (left) and projected DFT d levels (right, when the level has them),
     both relative to their barycentre, electrons of the state drawn by aufbau."""
@@ -459,7 +477,6 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
     columns = columns or (2 if len(groups) > 2 or has_dft else 1)
     with _style():
         fig = _new_figure(_width(columns), 2.6)
-        axes = fig.subplots(1, len(groups), sharey=True, squeeze=False)[0]
         panels = []
         for group in groups:
             dft = [r for r in c.held_or_free() if (r.arrangement, r.isomer) == group and r.d_levels_cm]
@@ -473,6 +490,19 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
         all_k = [np.asarray(s.levels_cm) / 1000 - np.mean(s.levels_cm) / 1000 for _, s, _ in panels]
         all_k += [np.asarray(r.d_levels_cm) / 1000 for _, _, r in panels if r is not None]
         span = max(float(np.ptp(levels)) for levels in all_k) or 1.0
+        tolerance, arrow, row_gap = max(0.05, 0.02 * span), 0.07 * span, 0.085 * span
+        layouts = []
+        for _, state, record in panels:
+            est_k = np.asarray(state.levels_cm) / 1000
+            est = _column_layout(est_k - est_k.mean(), state.level_labels, tolerance, arrow, row_gap)
+            dft = None if record is None else _column_layout(np.asarray(record.d_levels_cm) / 1000,
+                                                              record.d_level_labels or [""] * 5, tolerance, arrow,
+                                                              row_gap)
+            layouts.append((est, dft))
+        # panels as wide as their labels and columns need, so long labels never squeeze a panel's bars
+        axes = fig.subplots(1, len(groups), sharey=True, squeeze=False,
+                            gridspec_kw={"width_ratios": [_panel_need_pt(fig, est, dft, _panel_name(group, state))
+                                                          for (est, dft), (group, state, _) in zip(layouts, panels)]})[0]
         axes[0].set_ylabel("d-orbital energy / 10³ cm⁻¹")
         for ax in axes[1:]:
             ax.tick_params(axis="y", labelleft=False)
@@ -480,28 +510,22 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
             ax.tick_params(axis="x", length=0)
             ax.spines["bottom"].set_visible(False)
             ax.set_xticks([0.0], ["AOM est."])  # the final ticks' row of text, for the layout below
-        tolerance, arrow, row_gap = max(0.05, 0.02 * span), 0.07 * span, 0.085 * span
         _settle(fig)  # the panels' widths, for the gap between columns
         fitting = []
-        for ax, (group, state, record) in zip(axes, panels):
-            est_k = np.asarray(state.levels_cm) / 1000
-            est = _column_layout(est_k - est_k.mean(), state.level_labels, tolerance, arrow, row_gap)
+        for ax, (group, state, record), (est, dft) in zip(axes, panels, layouts):
             left = _draw_levels(ax, 0.0, est, _electrons(state.occupation, False), OKABE_ITO["blue"], -1)
             ticks, names, right, edge = [0.0], ["AOM est."], [], est.half_width + 0.1
             if record is not None:
-                dft = _column_layout(np.asarray(record.d_levels_cm) / 1000, record.d_level_labels or [""] * 5,
-                                     tolerance, arrow, row_gap)
                 names.append(f"DFT ({captions.BS_MARK})" if record.broken_symmetry else "DFT")
                 x_dft = est.half_width + _column_gap(ax, est, dft, names) + dft.half_width
                 right = _draw_levels(ax, x_dft, dft, _dft_electrons(c.d_electrons, record), OKABE_ITO["vermillion"], 1)
                 ticks.append(x_dft)
             ax.set_xticks(ticks, names)
             fitting.append((ax, left, right, edge))
-            panel = f"{_group_label(group)}, {multiplicity_word(state.spin2s)}"
             if style == "annotated":
-                ax.set_title(panel, fontsize=7.5)
+                ax.set_title(_panel_name(group, state), fontsize=PANEL_FONT_PT)
             else:
-                ax.set_xlabel(panel, fontsize=7.5)
+                ax.set_xlabel(_panel_name(group, state), fontsize=PANEL_FONT_PT)
         if style == "annotated":
             fig.suptitle(captions.d_levels_title(c), fontsize=8, x=0.0, ha="left")
             _caveats(fig, captions.d_levels_notes(c, any(r for _, _, r in panels)))

@@ -282,7 +282,7 @@ def ligand_field_table(comparison) -> Table:
         Column("e_sigma_estimate_cm-1", "e_σ est / cm⁻¹", r"$e_\sigma$ est / cm$^{-1}$", "number", 0),
         Column("e_pi_estimate_cm-1", "e_π est / cm⁻¹", r"$e_\pi$ est / cm$^{-1}$", "number", 0),
         Column("fit_rms_cm-1", "fit rms / cm⁻¹", r"fit rms / cm$^{-1}$", "number", 0),
-        Column("fit_condition_number", "condition", "condition", "number", 0),
+        Column("fit_condition_number", "condition", "condition", "number", 1),
         Column("fit_note", "note", "note"),
         Column("e_sigma_source", "", "", where="data"),
     ]
@@ -308,10 +308,11 @@ def ligand_field_table(comparison) -> Table:
                                                              _fit_remark(record, name, e_sigma, p.e_sigma_cm.value)),
                     "e_sigma_source": p.e_sigma_cm.source,
                 })
-    notes = [f"Fits: bounded least squares (e_σ ≥ 0) to the Kohn–Sham d block projected on the metal, of only the "
-             "parameters it determines (e_π tied to e_σ by the ligand's default ratio where the arrangement cannot "
-             f"separate them, as in T-4); withheld when the design's condition number exceeds {CONDITION_LIMIT:.0f} "
-             f"or the rms residual exceeds {100 * RESIDUAL_LIMIT_FRACTION:.0f} % of the d-level spread.",
+    notes = [f"Fits: bounded least squares (e_σ ≥ 0, e_π of the ligand's π sign) to the Kohn–Sham d block projected "
+             "on the metal, of only the parameters it determines (e_π tied to e_σ by the ligand's default ratio where "
+             "the arrangement cannot separate them, as in T-4); withheld when the design's condition number exceeds "
+             f"{CONDITION_LIMIT:.0f}, the rms residual exceeds {100 * RESIDUAL_LIMIT_FRACTION:.0f} % of the d-level "
+             "spread, an e_σ ends at its bound or |e_π| exceeds e_σ.",
              "Fitted values come from Kohn–Sham orbital energies, whose gap between filled and empty d levels "
              "carries exchange (wider with more exact exchange): compare their trends between ligands and "
              "arrangements, not their size with the spectroscopic values the estimate uses."]
