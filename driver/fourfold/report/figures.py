@@ -500,9 +500,9 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
                                                               row_gap)
             layouts.append((est, dft))
         # panels as wide as their labels and columns need, so long labels never squeeze a panel's bars
-        axes = fig.subplots(1, len(groups), sharey=True, squeeze=False,
-                            gridspec_kw={"width_ratios": [_panel_need_pt(fig, est, dft, _panel_name(group, state))
-                                                          for (est, dft), (group, state, _) in zip(layouts, panels)]})[0]
+        needs = [_panel_need_pt(fig, est, dft, _panel_name(group, state))
+                 for (est, dft), (group, state, _) in zip(layouts, panels)]
+        axes = fig.subplots(1, len(groups), sharey=True, squeeze=False, gridspec_kw={"width_ratios": needs})[0]
         axes[0].set_ylabel("d-orbital energy / 10³ cm⁻¹")
         for ax in axes[1:]:
             ax.tick_params(axis="y", labelleft=False)
