@@ -3,8 +3,9 @@ singlets drawn as such, captions that carry what the figures leave out.
 
 The comparisons here are built from StateRecords, not from a calculation: their energies and d levels are layout
 fixtures chosen to crowd the figures (near-degenerate levels, points in the agreement band, two SP-4 isomers),
-with no physical claim; the checks are geometric (text boxes, positions in data coordinates) or about what the
-texts say. Where a fixture follows a fact of the trade, the fact is named beside it.
+with no physical claim, except the [NiCl2(PH3)2] d levels, which fourfold computed for its demo study. The checks
+are geometric (text boxes, positions in data coordinates; legible print figures: common practice, no source) or
+about what the texts say. Where a fixture follows a fact of the trade, the fact is named beside it.
 """
 
 import re
