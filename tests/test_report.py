@@ -365,3 +365,21 @@ def test_formula_markup():
     assert slug("[Ni(CN)4]2-") == "NiCN4_2-"
     # LaTeX's ten special characters (L. Lamport, LaTeX: A Document Preparation System, 2nd ed. 1994; from memory)
     assert tex_escape("50% & $x_1$ #2 {a}") == r"50\% \& \$x\_1\$ \#2 \{a\}"
+
+
+def test_journal_report_writes_captions_for_every_figure_and_table(studies, tmp_path):
+    from fourfold.errors import InputError
+    from fourfold.pipeline import open_store
+    from fourfold.report.render import write_report
+    from fourfold.report.tables import study_tables
+
+    report = write_report(tmp_path / "journal", studies["study"], open_store(studies["pair"]), figure_style="journal")
+    captions = (tmp_path / "journal" / "tables" / "captions.md").read_text(encoding="utf-8")
+    figures = sorted({p.stem for p in report.figures})
+    assert figures == sorted(EXPECTED_FIGURES)
+    assert all(f"**Figure `{name}`.**" in captions for name in figures)
+    assert captions.count("**Table `") == len(study_tables(report.comparison, "kj"))
+    # what the annotated figures print as notes is in the captions: the xTB caveat, in Unicode typography
+    assert "GFN2-xTB energies: spin-state gaps are a screen only" in captions and "[NiCl₄]²⁻" in captions
+    with pytest.raises(InputError):
+        write_report(tmp_path / "bad", studies["study"], open_store(studies["pair"]), figure_style="poster")

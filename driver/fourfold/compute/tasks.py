@@ -299,7 +299,8 @@ def _d_block(scf, atoms, cx) -> dict:
     return {"d_levels_cm": [float(x) for x in levels.relative_cm], "d_level_labels": list(levels.labels),
             "d_weights": [float(x) for x in levels.d_weights], "fitted_e_sigma_cm": fit.e_sigma_cm,
             "fitted_e_pi_cm": fit.e_pi_cm, "fitted_e_ds_cm": fit.e_ds_cm, "fit_rms_cm": fit.rms_cm,
-            "fit_tied_pi": fit.tied_pi}
+            "fit_tied_pi": fit.tied_pi, "fit_condition_number": fit.condition_number, "fit_withheld": fit.withheld,
+            "fit_at_bound": list(fit.at_bound)}
 
 
 def _homo_energy_hartree(scf) -> float | None:

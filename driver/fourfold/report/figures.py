@@ -8,6 +8,10 @@ writes it as vector PDF and SVG plus a 300 dpi PNG.
   parity_figure      estimate vs computed ΔE(SP-4 − T-4) across the study, parity line and agreement band
   path_figure        energy along the D2d path T-4 → SP-4 per spin state, spin crossings marked
 
+Two styles: ``annotated`` (a title and the caveats under the figure, for reading the study folder) and
+``journal`` (axis labels, tick labels, legends and data labels only: title and caveats go to the caption,
+fourfold.report.captions).
+
 Style (fourfold's own): the Okabe–Ito colour-blind-safe palette (M. Okabe, K. Ito, "Color Universal Design",
 2008), one colour and one marker per spin state so the figures also read in greyscale, 7–8 pt text at the
 printed size, units on every axis. Widths: one column 85 mm, two columns 178 mm (common journal sizes;
@@ -23,10 +27,11 @@ from pathlib import Path
 
 import numpy as np
 
-from ..compute.xtb_engine import XTB_SPIN_WARNING
 from ..chem.notation import formula_slug
+from ..errors import InputError
 from ..geometry.polyhedra import arrangement_rank
 from ..units import energy_unit
+from . import captions
 from .markup import formula_unicode, multiplicity_word, orbital_mathtext
 
 SINGLE_COLUMN_IN = 85 / 25.4
@@ -44,7 +49,8 @@ _ISOMER_LINES = {"": "-", "trans": "-", "cis": "--"}
 _GREY = "#6b6b6b"
 # Units and formulas in Unicode (DejaVu Sans has the sub- and superscript digits): mathtext parsing was the
 # largest cost of writing a report (measured with cProfile), so it is kept for the orbital labels only.
-XTB_NOTE = "GFN2-xTB energies: spin-state gaps are a screen only, not a verdict"
+FIGURE_STYLES = ("annotated", "journal")
+DATA_LABEL = "data-label"  # gid of every text that labels a datum (a journal figure has no other text)
 
 _STYLE = {
     "font.family": "DejaVu Sans", "font.size": 8, "axes.labelsize": 8, "axes.titlesize": 8,
@@ -56,6 +62,12 @@ _STYLE = {
     "svg.fonttype": "path", "svg.hashsalt": "fourfold",  # reproducible SVG ids
     "savefig.dpi": PNG_DPI, "savefig.bbox": "tight", "savefig.pad_inches": 0.02,
 }
+
+
+def check_style(style: str) -> str:
+    if style not in FIGURE_STYLES:
+        raise InputError(f"figure style must be one of {', '.join(FIGURE_STYLES)}, got {style!r}")
+    return style
 
 
 def spin_colour(spin2s: int) -> str:
@@ -85,6 +97,13 @@ def _new_figure(width_in: float, height_in: float):
     fig = Figure(figsize=(width_in, height_in), layout="constrained")
     FigureCanvasAgg(fig)
     return fig
+
+
+def _settle(fig) -> None:
+    """Lay the figure out: constrained layout moves the axes by a few pixels between the first and second draw
+    (measured), so anything placed in pixels waits for the second."""
+    fig.canvas.draw()
+    fig.canvas.draw()
 
 
 def _width(columns: int) -> float:
@@ -129,17 +148,6 @@ def _caveats(fig, lines: list[str]) -> None:
                  transform=fig.transFigure)
 
 
-def _complex_notes(records, formula: str, warnings) -> list[str]:
-    """The caveats every energy figure of a complex carries: the xTB one, and the study's warnings that name
-    the complex (a dianion in the gas phase)."""
-    notes = [XTB_NOTE] if _is_xtb(records) else []
-    return notes + [w for w in warnings if formula in w and w != XTB_SPIN_WARNING]
-
-
-def _is_xtb(records) -> bool:
-    return any(r.engine == "xtb" and r.energy_hartree is not None for r in records)
-
-
 def _groups(c) -> list[tuple[str, str]]:
     found = {(s.arrangement, s.isomer) for s in c.estimate.states} | {(r.arrangement, r.isomer) for r in c.records}
     return sorted(found, key=lambda g: (arrangement_rank(g[0]), g[1]))
@@ -149,17 +157,25 @@ def _group_label(group) -> str:
     return f"{group[0]} {group[1]}".strip()
 
 
+def _group_tick(group, two_lines: bool) -> str:
+    """A group's tick label: the isomer under the arrangement where any group has one, so neighbours never touch."""
+    return "\n".join(p for p in group if p) if two_lines else _group_label(group)
+
+
 # ---- spin-state ladder ---------------------------------------------------------------------------------
 
-def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
-    """Levels of every arrangement × isomer × 2S of one complex: computed (left) beside estimated (right)."""
+def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str = "annotated"):
+    """Levels of every arrangement × isomer × 2S of one complex: computed (left) beside estimated (right); the
+    computed energies are the verdict's (Yamaguchi-projected for a broken-symmetry singlet where possible)."""
     from matplotlib.lines import Line2D
 
+    check_style(style)
     unit = energy_unit(unit).name
     groups = _groups(c)
-    computed = {(r.arrangement, r.isomer, r.spin2s): _in_unit(r.relative_kj_mol, unit) for r in c.held_or_free()}
-    marks = {(r.arrangement, r.isomer, r.spin2s): " BS" if r.broken_symmetry else ("*" if r.spin_contaminated else "")
-             for r in c.held_or_free()}
+    shown = c.held_or_free()
+    computed = {(r.arrangement, r.isomer, r.spin2s): _in_unit(r.relative_kj_mol, unit) for r in shown}
+    marks = {(r.arrangement, r.isomer, r.spin2s): f" {captions.BS_MARK}" if r.broken_symmetry
+             else (captions.CONTAMINATED_MARK if r.spin_contaminated else "") for r in shown}
     estimated = {(s.arrangement, s.isomer, s.spin2s): _in_unit(s.energy_kj_mol, unit) for s in c.estimate.states}
     spins = sorted({key[2] for key in estimated} | {key[2] for key in computed})
     width, inner = 0.27, 0.07  # bar length and half the gap between a group's two columns (group pitch 1)
@@ -170,6 +186,7 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
         span = (max(values) - min(values)) if values else 1.0
         gap = 0.06 * (span or 1.0)
         labels = []
+        between = {}  # gap after group i -> [(label, energy)]: group i's estimates and group i+1's computed levels
         for i, group in enumerate(groups):
             for side, table in ((-1, computed), (1, estimated)):
                 keys = [(*group, s) for s in spins if table.get((*group, s)) is not None]
@@ -181,15 +198,19 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
                     ax.plot([x0, x1], [energy, energy], color=spin_colour(key[2]), lw=2.0, solid_capstyle="butt",
                             gid=f"{'calc' if side < 0 else 'est'}:{_group_label(group)}:{key[2]}")
                 label_x = x0 - 0.025 if side < 0 else x1 + 0.025
-                for key, y in zip(keys, _spread(energies, gap)):
+                for key, y, energy in zip(keys, _spread(energies, gap), energies):
                     mark = marks.get(key, "") if side < 0 else ""
                     labels.append(ax.text(label_x, y, f"{key[2] + 1}{mark}", color=spin_colour(key[2]), fontsize=6.5,
-                                          fontweight="bold", ha="right" if side < 0 else "left", va="center"))
+                                          fontweight="bold", ha="right" if side < 0 else "left", va="center",
+                                          gid=DATA_LABEL))
+                    between.setdefault(i - 1 if side < 0 else i, []).append((labels[-1], energy))
             for s in spins:  # correlation lines: the same state, computed and estimated
                 a, b = computed.get((*group, s)), estimated.get((*group, s))
                 if a is not None and b is not None:
                     ax.plot([i - inner, i + inner], [a, b], color=spin_colour(s), lw=0.6, ls=":")
-        ax.set_xticks(range(len(groups)), [_group_label(g) for g in groups], fontweight="bold", fontsize=7.5)
+        two_lines = any(g[1] for g in groups)
+        ax.set_xticks(range(len(groups)), [_group_tick(g, two_lines) for g in groups], fontweight="bold",
+                      fontsize=7.5, linespacing=1.0)
         ax.set_xticks([x for i in range(len(groups)) for x in (i - inner - width / 2, i + inner + width / 2)],
                       [t for _ in groups for t in ("calc.", "est.")], minor=True, fontsize=6.5)
         ax.tick_params(axis="x", which="both", length=0)
@@ -199,27 +220,35 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
         ax.set_ylabel(f"relative energy / {unit_math(unit)}")
         ax.spines["bottom"].set_visible(False)
         ax.axhline(0.0, color=_GREY, lw=0.4, zorder=0)
-        ax.set_title(f"{formula_unicode(c.formula)}, spin-state ladder ({c.level})", loc="left")
-        handles = [Line2D([], [], color=spin_colour(s), lw=2.0, label=f"{s + 1}  {multiplicity_word(s)}") for s in spins]
+        handles = [Line2D([], [], color=spin_colour(s), lw=2.0, label=f"{s + 1}  {multiplicity_word(s)}")
+                   for s in spins]
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, 1.0), handlelength=1.2, borderaxespad=0.2,
                   title="2S+1", title_fontsize=7, alignment="left")
-        notes = _complex_notes(c.records, c.formula, warnings)
-        flagged = [r for r in c.held_or_free() if r.broken_symmetry or r.spin_contaminated]
-        if any(r.broken_symmetry for r in flagged):
-            notes.append("BS: broken-symmetry singlet (open-shell UKS solution, ⟨S²⟩ near 1), not a closed-shell one")
-        if any(r.spin_contaminated and not r.broken_symmetry for r in flagged):
-            notes.append("*: spin contaminated, |⟨S²⟩ − S(S+1)| > 0.1")
-        missing = [f"{r.name} {multiplicity_word(r.spin2s)} ({r.kind}: {r.status})"
-                   for r in c.records if r.status != "done"]
-        if missing:
-            notes.append("not computed: " + "; ".join(missing[:4]) + (" …" if len(missing) > 4 else ""))
-        _caveats(fig, notes)
-        fig.canvas.draw()  # lay out, then widen the x range just enough for the outermost labels
+        if style == "annotated":
+            ax.set_title(captions.ladder_title(c), loc="left")
+            _caveats(fig, captions.ladder_notes(c, warnings))
+        _settle(fig)  # lay out, then widen the x range just enough for the outermost labels
         left = [t for t in labels if t.get_position()[0] < 0]
         right = [t for t in labels if t.get_position()[0] > len(groups) - 1]
         if left:
             _fit_labels(ax, left, right, len(groups) - 1 + inner + width)
+        _part_neighbours(ax, [between[g] for g in range(len(groups) - 1) if g in between])
     return fig
+
+
+def _part_neighbours(ax, gaps) -> None:
+    """Labels facing each other across the space between two groups: where any two meet, that space's labels
+    are spread together by their heights (each as near its level as the others allow)."""
+    fig = ax.figure
+    renderer = fig.canvas.get_renderer()
+    _settle(fig)
+    per_px = np.ptp(ax.get_ylim()) / ax.get_window_extent(renderer).height
+    for placed in gaps:
+        boxes = [label.get_window_extent(renderer) for label, _ in placed]
+        if any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:]):
+            height = 1.15 * max(box.height for box in boxes) * per_px
+            for (label, _), y in zip(placed, _spread([energy for _, energy in placed], height)):
+                label.set_y(y)
 
 
 # ---- d-orbital splitting -------------------------------------------------------------------------------
@@ -237,67 +266,169 @@ def _degenerate_sets(levels, tolerance) -> list[list[int]]:
 _ORBITAL_ORDER = {"xy": 0, "xz": 1, "yz": 2, "z2": 3, "x2-y2": 4}
 
 
-def _set_label(labels) -> str:
-    """'$d_{xz}$' for one level, '$d_{xz,yz}$' for a degenerate set; 'xz/yz' (mixed character) kept as such."""
+def _set_name(labels) -> str:
+    """'xz' for one level, 'xz,yz' for several (the d functions they share out among them); 'yz/xy' (one level
+    of mixed character) kept as such."""
     if len(labels) == 1:
-        return orbital_mathtext(labels[0])
+        return labels[0]
     parts = set(p for label in labels for p in label.split("/"))
-    return orbital_mathtext(",".join(sorted(parts, key=lambda p: _ORBITAL_ORDER.get(p, 9))))
+    return ",".join(sorted(parts, key=lambda p: _ORBITAL_ORDER.get(p, 9)))
+
+
+def _row_names(sets_per_row, labels) -> list[list[str]]:
+    """Names of each row's sets in bar order, one name per set; a row whose sets would repeat a name (levels of
+    the same mixed character, as a split t2 set) is named once for all the d functions it holds. A name met
+    again in a higher row gets a prime (separate levels of the same character)."""
+    rows = []
+    for sets in sets_per_row:
+        names = [_set_name([labels[i] for i in members]) for members in sets]
+        if len(set(names)) < len(names):
+            names = [_set_name([labels[i] for members in sets for i in members])]
+        rows.append(names)
+    seen: dict[str, int] = {}
+    primed = []
+    for names in rows:
+        primed.append([name + "'" * seen.get(name, 0) for name in names])
+        for name in names:
+            seen[name] = seen.get(name, 0) + 1
+    return primed
+
+
+def _mathtext(names: list[str]) -> str:
+    """A row's label: each set's name as mathtext, primes kept, in bar order."""
+    pieces = []
+    for name in names:
+        primes = len(name) - len(name.rstrip("'"))
+        text = orbital_mathtext(name.rstrip("'"))
+        pieces.append(text + "′" * primes)  # after the subscript, not over it
+    return ", ".join(pieces)
 
 
 LEVEL_WIDTH, LEVEL_SPACE = 0.26, 0.07  # one d level's bar and the gap beside it, in panel x units
+LABEL_PAD = 0.05  # between a row's outer bar and its label, panel x units
+MIN_COLUMN_GAP = 0.35  # between the estimate and DFT columns, panel x units
+LEVEL_FONT_PT, PANEL_FONT_PT = 6.5, 7.5
 
 
 @dataclass(frozen=True)
 class _Column:
     sets: list  # indices of the levels in each (near-)degenerate set, ascending
     heights: list  # energy of each set
+    rows: list  # set indices drawn side by side and named by one label (closer than a label's height)
+    names: list  # each row's label (mathtext)
     offsets: dict  # level index -> x offset from the column centre
+    row_half_widths: list
     half_width: float
     arrow_len: float
 
 
-def _column_layout(levels_k, tolerance_k, arrow_len) -> _Column:
-    """Where each level goes. Sets closer than an electron arrow would reach share a row, side by side (each at
-    its own energy), so arrows of neighbouring levels never run into each other."""
+def _column_layout(levels_k, labels, tolerance_k, arrow_len, row_gap) -> _Column:
+    """Where each level goes. Sets closer than ``row_gap`` (a label's height) share a row, side by side, each
+    at its own energy: the row gets one label at its own height, and arrows of neighbouring levels never meet."""
     pitch = LEVEL_WIDTH + LEVEL_SPACE
     levels_k = np.asarray(levels_k, dtype=float)
     sets = _degenerate_sets(levels_k, tolerance_k)
     heights = [float(levels_k[s].mean()) for s in sets]
     rows = [[0]]
     for k in range(1, len(sets)):
-        if heights[k] - heights[rows[-1][-1]] < 0.75 * arrow_len:
+        if heights[k] - heights[rows[-1][-1]] < row_gap:
             rows[-1].append(k)
         else:
             rows.append([k])
-    if len(rows) > 1:
-        row_heights = [np.mean([heights[k] for k in row]) for row in rows]
-        arrow_len = min(arrow_len, 0.65 * float(np.min(np.diff(row_heights))))
-    offsets, widest = {}, 0
+    if len(rows) > 1:  # arrows of neighbouring rows stop short of each other
+        closest = min(heights[row[0]] - heights[below[-1]] for below, row in zip(rows, rows[1:]))
+        arrow_len = min(arrow_len, 0.9 * closest)
+    offsets, half_widths = {}, []
     for row in rows:
         members = [index for k in row for index in sets[k]]
-        widest = max(widest, len(members))
+        half_widths.append(len(members) * pitch / 2 - LEVEL_SPACE / 2)
         for position, index in enumerate(members):
             offsets[index] = (position - (len(members) - 1) / 2) * pitch
-    return _Column(sets, heights, offsets, widest * pitch / 2, arrow_len)
+    names = [_mathtext(n) for n in _row_names([[sets[k] for k in row] for row in rows], labels)]
+    return _Column(sets, heights, rows, names, offsets, half_widths, max(half_widths), arrow_len)
 
 
-def _draw_levels(ax, x_centre, column: _Column, labels, occupation, colour, label_side, gap) -> list:
-    """One column of d levels: bars, electrons as arrows, one label per set at one side; returns the labels."""
+def _electrons(occupation, broken_symmetry: bool) -> list[list[int]]:
+    """Spins (+1 up, −1 down) per level. A broken-symmetry singlet keeps its two unpaired electrons on different
+    orbitals with opposite spins (the second one down), not as a closed-shell pair."""
+    spins, singles = [], 0
+    for count in occupation:
+        if count == 2:
+            spins.append([1, -1])
+        elif count == 1:
+            spins.append([-1] if broken_symmetry and singles % 2 else [1])
+            singles += 1
+        else:
+            spins.append([])
+    return spins
+
+
+def _draw_levels(ax, x_centre, column: _Column, electrons, colour, label_side) -> list:
+    """One column of d levels: bars, electrons as arrows (inside their bar), one label per row naming its levels
+    in bar order, level with the row's outer bar beside it; returns the labels."""
+    from matplotlib.patches import FancyArrowPatch
+
     width, length = LEVEL_WIDTH, column.arrow_len
     texts = []
-    for members, y, y_label in zip(column.sets, column.heights, _spread(column.heights, gap)):
-        for index in members:
-            x = x_centre + column.offsets[index]
-            ax.plot([x - width / 2, x + width / 2], [y, y], color=colour, lw=1.6, solid_capstyle="butt")
-            for dx, direction in {0: [], 1: [(0.0, 1)], 2: [(-width / 5, 1), (width / 5, -1)]}[occupation[index]]:
-                ax.annotate("", xy=(x + dx, y + direction * length / 2), xytext=(x + dx, y - direction * length / 2),
-                            arrowprops=dict(arrowstyle="-|>,head_length=0.25,head_width=0.12", lw=0.7, color="black",
-                                            shrinkA=0, shrinkB=0))
-        texts.append(ax.text(x_centre + label_side * (column.half_width + 0.06), y_label,
-                             _set_label([labels[i] for i in members]), fontsize=6.5,
-                             ha="left" if label_side > 0 else "right", va="center"))
+    for row, name, half_width in zip(column.rows, column.names, column.row_half_widths):
+        for k in row:
+            y = column.heights[k]
+            for index in column.sets[k]:
+                x = x_centre + column.offsets[index]
+                ax.plot([x - width / 2, x + width / 2], [y, y], color=colour, lw=1.6, solid_capstyle="butt",
+                        gid="d-level")
+                spins = electrons[index]
+                for dx, spin in zip((0.0,) if len(spins) == 1 else (-width / 4.5, width / 4.5), spins):
+                    ax.add_patch(FancyArrowPatch((x + dx, y - spin * length / 2), (x + dx, y + spin * length / 2),
+                                                 arrowstyle="-|>,head_length=0.45,head_width=0.2", mutation_scale=6.0,
+                                                 lw=0.7, color="black", shrinkA=0, shrinkB=0,
+                                                 gid="electron-up" if spin > 0 else "electron-down"))
+        y_row = column.heights[row[-1] if label_side > 0 else row[0]]  # level with the bar next to the label
+        label = ax.text(x_centre + label_side * (half_width + LABEL_PAD), y_row, name, fontsize=LEVEL_FONT_PT,
+                        ha="left" if label_side > 0 else "right", va="center", gid=DATA_LABEL)
+        label.set_in_layout(False)  # _fit_labels makes room inside the panel; the layout must not shrink it first
+        texts.append(label)
     return texts
+
+
+def _widest_px(ax, strings, fontsize) -> float:
+    """Width in display pixels of the widest of ``strings`` as they would be drawn on ``ax`` (or a figure)."""
+    renderer = ax.figure.canvas.get_renderer()
+    widest = 0.0
+    for text in strings:
+        probe = ax.text(0.0, 0.0, text, fontsize=fontsize)
+        widest = max(widest, probe.get_window_extent(renderer).width)
+        probe.remove()
+    return widest
+
+
+COLUMN_PT_PER_UNIT = 50.0  # a panel's width per x unit of its columns when laid out: a bar 13 pt long
+
+
+def _panel_need_pt(fig, est: _Column, dft: _Column | None, name: str, pad_pt: float = 4.5) -> float:
+    """Width a panel needs (points): its level labels and its columns at COLUMN_PT_PER_UNIT, and at least its name."""
+    to_pt = 72.0 / fig.dpi
+    units = 2 * est.half_width + 2 * LABEL_PAD
+    labels = _widest_px(fig, est.names, LEVEL_FONT_PT) * to_pt + 2 * pad_pt
+    if dft is not None:
+        units += MIN_COLUMN_GAP + 2 * dft.half_width
+        labels += _widest_px(fig, dft.names, LEVEL_FONT_PT) * to_pt
+    return max(labels + units * COLUMN_PT_PER_UNIT, _widest_px(fig, [name], PANEL_FONT_PT) * to_pt + 2 * pad_pt)
+
+
+def _column_gap(ax, est: _Column, dft: _Column, tick_names, pad_px: float = 6.0) -> float:
+    """The gap (panel x units) between the estimate and DFT columns that keeps their tick labels apart once
+    ``_fit_labels`` has sized the panel for the level labels (same arithmetic, solved for the gap)."""
+    import matplotlib
+
+    panel_px = ax.get_window_extent(ax.figure.canvas.get_renderer()).width
+    labels_px = _widest_px(ax, est.names, LEVEL_FONT_PT) + _widest_px(ax, dft.names, LEVEL_FONT_PT) + 2 * pad_px
+    available_px = panel_px * (1.0 - min(labels_px / panel_px, 0.8))
+    ticks_px = sum(_widest_px(ax, [n], matplotlib.rcParams["xtick.labelsize"]) for n in tick_names) / 2 + 2 * pad_px
+    fixed = 2 * est.half_width + 2 * dft.half_width + 2 * LABEL_PAD  # the columns and their label pads
+    half = est.half_width + dft.half_width + 2 * LABEL_PAD
+    share = min(ticks_px / available_px, 0.9)  # centre distance ≥ ticks_px: (span − half)/span ≥ share
+    return max(MIN_COLUMN_GAP, half / (1.0 - share) - fixed)
 
 
 def _fit_labels(ax, left_texts, right_texts, right_edge: float, pad_px: float = 6.0) -> None:
@@ -325,19 +456,31 @@ def _aufbau(n_electrons: int, spin2s: int):
     return occupations(n_electrons, spin2s)
 
 
-def d_levels_figure(c, columns: int | None = None):
+def _dft_electrons(d_electrons: int, record) -> list[list[int]]:
+    """The computed state's d electrons: aufbau for its 2S, a broken-symmetry singlet as the triplet's
+    configuration with its two unpaired spins opposite."""
+    if record.broken_symmetry and record.spin2s == 0:
+        return _electrons(_aufbau(d_electrons, 2), True)
+    return _electrons(_aufbau(d_electrons, record.spin2s), False)
+
+
+def _panel_name(group, state) -> str:
+    return f"{_group_label(group)}, {multiplicity_word(state.spin2s)}"
+
+
+def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
     """Per arrangement × isomer: AOM estimate (left) and projected DFT d levels (right, when the level has them),
     both relative to their barycentre, electrons of the state drawn by aufbau."""
+    check_style(style)
     groups = [g for g in _groups(c) if any((s.arrangement, s.isomer) == g for s in c.estimate.states)]
     has_dft = any(r.d_levels_cm for r in c.held_or_free())
     columns = columns or (2 if len(groups) > 2 or has_dft else 1)
     with _style():
         fig = _new_figure(_width(columns), 2.6)
-        axes = fig.subplots(1, len(groups), sharey=True, squeeze=False)[0]
         panels = []
         for group in groups:
             dft = [r for r in c.held_or_free() if (r.arrangement, r.isomer) == group and r.d_levels_cm]
-            record = min(dft, key=lambda r: r.energy_hartree) if dft else None
+            record = min(dft, key=lambda r: r.verdict_energy_hartree) if dft else None
             if record is not None:
                 state = c.estimate.state(group[0], record.spin2s, group[1])
             else:
@@ -347,82 +490,169 @@ def d_levels_figure(c, columns: int | None = None):
         all_k = [np.asarray(s.levels_cm) / 1000 - np.mean(s.levels_cm) / 1000 for _, s, _ in panels]
         all_k += [np.asarray(r.d_levels_cm) / 1000 for _, _, r in panels if r is not None]
         span = max(float(np.ptp(levels)) for levels in all_k) or 1.0
-        fitting = []
-        for ax, (group, state, record) in zip(axes, panels):
+        tolerance, arrow, row_gap = max(0.05, 0.02 * span), 0.07 * span, 0.085 * span
+        layouts = []
+        for _, state, record in panels:
             est_k = np.asarray(state.levels_cm) / 1000
-            est_k = est_k - est_k.mean()
-            tolerance, arrow, gap = max(0.05, 0.02 * span), 0.07 * span, 0.075 * span
-            est = _column_layout(est_k, tolerance, arrow)
-            left = _draw_levels(ax, 0.0, est, state.level_labels, state.occupation, OKABE_ITO["blue"], -1, gap)
-            ticks, names, right, edge = [0.0], ["AOM est."], [], est.half_width + 0.1
-            if record is not None:
-                dft = _column_layout(np.asarray(record.d_levels_cm) / 1000, tolerance, arrow)
-                x_dft = est.half_width + 0.35 + dft.half_width
-                right = _draw_levels(ax, x_dft, dft, record.d_level_labels or [""] * 5,
-                                     _aufbau(c.d_electrons, record.spin2s), OKABE_ITO["vermillion"], 1, gap)
-                ticks.append(x_dft)
-                names.append("DFT")
-            ax.set_xticks(ticks, names)
-            ax.tick_params(axis="x", length=0)
-            fitting.append((ax, left, right, edge))
-            ax.spines["bottom"].set_visible(False)
-            ax.set_title(f"{_group_label(group)}, {multiplicity_word(state.spin2s)}", fontsize=7.5)
+            est = _column_layout(est_k - est_k.mean(), state.level_labels, tolerance, arrow, row_gap)
+            dft = None if record is None else _column_layout(np.asarray(record.d_levels_cm) / 1000,
+                                                              record.d_level_labels or [""] * 5, tolerance, arrow,
+                                                              row_gap)
+            layouts.append((est, dft))
+        # panels as wide as their labels and columns need, so long labels never squeeze a panel's bars
+        needs = [_panel_need_pt(fig, est, dft, _panel_name(group, state))
+                 for (est, dft), (group, state, _) in zip(layouts, panels)]
+        axes = fig.subplots(1, len(groups), sharey=True, squeeze=False, gridspec_kw={"width_ratios": needs})[0]
         axes[0].set_ylabel("d-orbital energy / 10³ cm⁻¹")
         for ax in axes[1:]:
             ax.tick_params(axis="y", labelleft=False)
-        fig.suptitle(f"{formula_unicode(c.formula)}: d-orbital splitting (barycentre at 0)", fontsize=8, x=0.0,
-                     ha="left")
-        fig.canvas.draw()  # lay the panels out, then size each one's x range to its labels
+        for ax in axes:
+            ax.tick_params(axis="x", length=0)
+            ax.spines["bottom"].set_visible(False)
+            ax.set_xticks([0.0], ["AOM est."])  # the final ticks' row of text, for the layout below
+        _settle(fig)  # the panels' widths, for the gap between columns
+        fitting = []
+        for ax, (group, state, record), (est, dft) in zip(axes, panels, layouts):
+            left = _draw_levels(ax, 0.0, est, _electrons(state.occupation, False), OKABE_ITO["blue"], -1)
+            ticks, names, right, edge = [0.0], ["AOM est."], [], est.half_width + 0.1
+            if record is not None:
+                names.append(f"DFT ({captions.BS_MARK})" if record.broken_symmetry else "DFT")
+                x_dft = est.half_width + _column_gap(ax, est, dft, names) + dft.half_width
+                right = _draw_levels(ax, x_dft, dft, _dft_electrons(c.d_electrons, record), OKABE_ITO["vermillion"], 1)
+                ticks.append(x_dft)
+            ax.set_xticks(ticks, names)
+            fitting.append((ax, left, right, edge))
+            if style == "annotated":
+                ax.set_title(_panel_name(group, state), fontsize=PANEL_FONT_PT)
+            else:
+                ax.set_xlabel(_panel_name(group, state), fontsize=PANEL_FONT_PT)
+        if style == "annotated":
+            fig.suptitle(captions.d_levels_title(c), fontsize=8, x=0.0, ha="left")
+            _caveats(fig, captions.d_levels_notes(c, any(r for _, _, r in panels)))
+        _settle(fig)  # lay the panels out, then size each one's x range to its labels
         for ax, left, right, edge in fitting:
             _fit_labels(ax, left, right, edge)
-        notes = []
-        if not any(r for _, _, r in panels):
-            notes.append(f"no projected DFT d levels at level {c.level} (GFN2-xTB has none): estimate only")
-        else:
-            notes.append("DFT: d-dominated Kohn–Sham levels projected on the metal; electrons by aufbau for the "
-                         "state's 2S")
-        _caveats(fig, notes)
     return fig
 
 
 # ---- parity ---------------------------------------------------------------------------------------------
 
-def _place_labels(ax, points, texts, obstacles=()):
+_NEAR = [((5, 4), "left", "bottom"), ((5, -4), "left", "top"), ((-5, 4), "right", "bottom"),
+         ((-5, -4), "right", "top"), ((7, 0), "left", "center"), ((-7, 0), "right", "center"),
+         ((0, 7), "center", "bottom"), ((0, -7), "center", "top")]
+_LEADER_FROM_PT = 9.0  # labels further from their point than this get a leader line
+
+
+def _far_candidates():
+    """Offsets (points) further out in eight directions, nearest first: labels there get a leader line."""
+    found = []
+    for distance in (12, 18, 26, 36, 48, 62):
+        for dx, dy in ((-1, 1), (1, -1), (1, 1), (-1, -1), (0, 1), (0, -1), (1, 0), (-1, 0)):
+            ha = "left" if dx > 0 else ("right" if dx < 0 else "center")
+            va = "bottom" if dy > 0 else ("top" if dy < 0 else "center")
+            found.append(((dx * distance * 0.75, dy * distance * 0.75) if dx and dy else
+                          (dx * distance, dy * distance), ha, va))
+    return found
+
+
+def _place_labels(ax, points, texts, obstacles=(), keep_out=None, first=()):
     """Put each label next to its point where it overlaps no other label, point, obstacle (text artists already
-    on the axes) or the axes edge."""
+    on the axes), the axes edge or the region ``keep_out(bounds_px)`` says is forbidden, and lies nearer its own
+    point than any other; further out when nothing near is free. A label far from its point, or nearer another
+    point after all, gets a leader line. Points whose index is in ``first`` (the most constrained) are labelled
+    first; the labels come back in the order of ``points``."""
     fig = ax.figure
     renderer = fig.canvas.get_renderer()
-    candidates = [((5, 4), "left", "bottom"), ((5, -4), "left", "top"), ((-5, 4), "right", "bottom"),
-                  ((-5, -4), "right", "top"), ((7, 0), "left", "center"), ((-7, 0), "right", "center"),
-                  ((0, 7), "center", "bottom"), ((0, -7), "center", "top")]
-    fig.canvas.draw()
-    point_boxes = []
-    for x, y in points:
-        px, py = ax.transData.transform((x, y))
-        point_boxes.append((px - 4, py - 4, px + 4, py + 4))
+    _settle(fig)
+    point_boxes = _point_boxes(ax, points)  # a margin round each point: no label covers a point
+    centres = [ax.transData.transform(p) for p in points]
     axes_box = ax.get_window_extent(renderer)
     placed = [tuple(o.get_window_extent(renderer).extents) for o in obstacles]
-    artists = []
-    for (x, y), text in zip(points, texts):
+    artists = {}
+    for i in sorted(range(len(points)), key=lambda i: i not in first):
         best = None
-        for offset, ha, va in candidates:
-            artist = ax.annotate(text, (x, y), xytext=offset, textcoords="offset points", ha=ha, va=va, fontsize=6.5)
+        for offset, ha, va in _NEAR + _far_candidates():
+            artist = ax.annotate(texts[i], points[i], xytext=offset, textcoords="offset points", ha=ha, va=va,
+                                 fontsize=6.5, gid=DATA_LABEL)
             box = artist.get_window_extent(renderer)
             bounds = (box.x0, box.y0, box.x1, box.y1)
-            clash = sum(_overlap(bounds, other) for other in placed + point_boxes)
+            # worst first: off the axes, in the forbidden region, on another text, on a point, nearer another point
             outside = box.x0 < axes_box.x0 or box.x1 > axes_box.x1 or box.y0 < axes_box.y0 or box.y1 > axes_box.y1
-            score = clash + (1e6 if outside else 0.0)
+            forbidden = keep_out is not None and keep_out(bounds)
+            on_text = sum(1 for other in placed if _overlap(bounds, other) > 0)
+            on_point = sum(1 for other in point_boxes if _overlap(bounds, other) > 0)
+            astray = _nearest(bounds, centres) != i
+            score = 1e6 * outside + 1e5 * forbidden + 2e4 * on_text + 1e4 * on_point + 5e3 * astray
             if best is None or score < best[0]:
                 if best is not None:
                     best[1].remove()
-                best = (score, artist, bounds)
+                best = (score, artist, bounds, (offset, ha, va), np.hypot(*offset) > _LEADER_FROM_PT or astray)
             else:
                 artist.remove()
             if score == 0:
                 break
-        placed.append(best[2])
-        artists.append(best[1])
-    return artists
+        _, artist, bounds, (offset, ha, va), leader = best
+        if leader:  # the same label, with a line to its point
+            artist.remove()
+            artist = ax.annotate(texts[i], points[i], xytext=offset, textcoords="offset points", ha=ha, va=va,
+                                 fontsize=6.5, gid=DATA_LABEL,
+                                 arrowprops=dict(arrowstyle="-", lw=0.4, color=_GREY, shrinkA=1, shrinkB=3))
+        artist.set_in_layout(False)  # placed for this layout: it must not change it
+        placed.append(bounds)
+        artists[i] = artist
+    return [artists[i] for i in range(len(points))]
+
+
+def _nearest(bounds, centres) -> int:
+    """Index of the point nearest to a box (display pixels)."""
+    x0, y0, x1, y1 = bounds
+    return int(np.argmin([np.hypot(max(x0 - cx, 0, cx - x1), max(y0 - cy, 0, cy - y1)) for cx, cy in centres]))
+
+
+def _point_boxes(ax, points, half_px: float = 6.0) -> list[tuple]:
+    boxes = []
+    for x, y in points:
+        px, py = ax.transData.transform((x, y))
+        boxes.append((px - half_px, py - half_px, px + half_px, py + half_px))
+    return boxes
+
+
+# each grey quadrant's caption in one of its two corners away from the diagonal (axes fractions; limits symmetric)
+_QUADRANT_CORNERS = {"both:\nT-4 lower": [((0.52, 0.98), "left", "top"), ((0.98, 0.52), "right", "bottom")],
+                     "both:\nSP-4 lower": [((0.48, 0.02), "right", "bottom"), ((0.02, 0.48), "left", "top")]}
+
+
+def _quadrant_captions(ax, points, keep_out) -> list:
+    """Name the two grey quadrants, each in the corner where it covers no point and stays out of the band."""
+    fig = ax.figure
+    _settle(fig)
+    renderer = fig.canvas.get_renderer()
+    boxes = _point_boxes(ax, points)
+    placed = []
+    for text, corners in _QUADRANT_CORNERS.items():
+        best = None
+        for position, ha, va in corners:
+            artist = ax.text(*position, text, transform=ax.transAxes, ha=ha, va=va, fontsize=6.5, color=_GREY,
+                             linespacing=1.0, in_layout=False)
+            box = artist.get_window_extent(renderer)
+            bounds = (box.x0, box.y0, box.x1, box.y1)
+            score = sum(_overlap(bounds, other) for other in boxes) + (1e5 if keep_out(bounds) else 0.0)
+            if best is None or score < best[0]:
+                if best is not None:
+                    best[1].remove()
+                best = (score, artist)
+            else:
+                artist.remove()
+        placed.append(best[1])
+    return placed
+
+
+def band_distance(ax, bounds_px) -> float:
+    """How far (data units of y − x) a box in display pixels stays from the parity line: the smallest |y − x| over
+    the box, 0 when the box crosses the line (equal, linear axes)."""
+    (x0, y0), (x1, y1) = ax.transData.inverted().transform([bounds_px[:2], bounds_px[2:]])
+    low, high = y0 - x1, y1 - x0
+    return 0.0 if low <= 0.0 <= high else min(abs(low), abs(high))
 
 
 def _overlap(a, b) -> float:
@@ -441,8 +671,21 @@ def parity_points(comparison) -> list[tuple[str, float, float, bool | None]]:
     return points
 
 
-def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: float = AGREEMENT_BAND_KJ_MOL):
-    """Estimated against computed ΔE(SP-4 − T-4) per complex; None when no complex has both numbers."""
+def _half_step_limit(reach: float) -> float:
+    """A symmetric axis limit at least ``reach``, half a tick step beyond the outermost tick, so the x and y tick
+    labels at the shared corner never meet."""
+    from matplotlib.ticker import MaxNLocator
+
+    ticks = MaxNLocator(nbins=6, steps=[1, 2, 2.5, 5, 10]).tick_values(-reach, reach)
+    step = float(ticks[1] - ticks[0])
+    return (np.ceil(reach / step - 0.5) + 0.5) * step
+
+
+def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: float = AGREEMENT_BAND_KJ_MOL,
+                  style: str = "annotated"):
+    """Estimated against computed ΔE(SP-4 − T-4) per complex; None when no complex has both numbers. Labels stay
+    outside the agreement band (with a leader line where their point lies in it)."""
+    check_style(style)
     unit = energy_unit(unit).name
     points = parity_points(comparison)
     if not points:
@@ -457,12 +700,13 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
         width = _width(columns)
         fig = _new_figure(width, width * 0.92 if columns == 1 else 4.2)
         ax = fig.add_subplot()
-        reach = max(float(np.max(np.abs(np.concatenate([xs, ys])))), 2 * band) * 1.18
-        lo, hi = -reach, reach
+        reach = max(float(np.max(np.abs(np.concatenate([xs, ys])))), 2 * band) * 1.3  # room for labels at the edge
+        hi = _half_step_limit(reach)
+        lo = -hi
         ax.fill_between([0, hi], 0, hi, color="#e8e8e8", lw=0, zorder=0)
         ax.fill_between([lo, 0], lo, 0, color="#e8e8e8", lw=0, zorder=0)
         ax.fill_between([lo, hi], [lo - band, hi - band], [lo + band, hi + band], color=OKABE_ITO["sky blue"],
-                        alpha=0.35, lw=0, zorder=1)
+                        alpha=0.35, lw=0, zorder=1, gid="parity-band")
         ax.plot([lo, hi], [lo, hi], color="black", lw=0.8, ls="--", zorder=2)
         ax.axhline(0, color=_GREY, lw=0.5, zorder=1)
         ax.axvline(0, color=_GREY, lw=0.5, zorder=1)
@@ -475,11 +719,6 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
         delta = "ΔE(SP-4 − T-4)"
         ax.set_xlabel(f"{delta}, estimate / {unit_math(unit)}")
         ax.set_ylabel(f"{delta}, computed / {unit_math(unit)}")
-        # quadrant captions beside the x = 0 line at the top and bottom edges, away from the diagonal band
-        captions = [ax.text(0.52, 0.98, "both: T-4 lower", transform=ax.transAxes, ha="left", va="top", fontsize=6.5,
-                            color=_GREY),
-                    ax.text(0.48, 0.02, "both: SP-4 lower", transform=ax.transAxes, ha="right", va="bottom",
-                            fontsize=6.5, color=_GREY)]
         band_text = f"{band:.{0 if unit == 'cm' else 1}f}".rstrip("0").rstrip(".")
         handles = [Line2D([], [], color="black", ls="--", lw=0.8, label="parity"),
                    Patch(color=OKABE_ITO["sky blue"], alpha=0.35, label=f"±{band_text} {unit_math(unit)}"),
@@ -491,12 +730,15 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
                                   label="different ground state"))
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.0, -0.16), ncol=2, fontsize=6.5,
                   handlelength=1.4, columnspacing=1.0)
-        _place_labels(ax, list(zip(xs, ys)), [formula_unicode(p[0]) for p in points], obstacles=captions)
-        notes = [XTB_NOTE] if any(_is_xtb(c.records) for c in comparison.complexes) else []
-        notes += [w for w in comparison.warnings if w != XTB_SPIN_WARNING
-                  and any(c.formula in w for c in comparison.complexes)]
-        notes.append("ΔE: lowest SP-4 state minus lowest T-4 state (any spin); held relaxations where present")
-        _caveats(fig, notes)
+        def keep_out(bounds):
+            return band_distance(ax, bounds) <= band
+
+        quadrants = []
+        if style == "annotated":
+            _caveats(fig, captions.parity_notes(comparison))
+            quadrants = _quadrant_captions(ax, list(zip(xs, ys)), keep_out)
+        _place_labels(ax, list(zip(xs, ys)), [formula_unicode(p[0]) for p in points], obstacles=quadrants,
+                      keep_out=keep_out, first={i for i, (x, y) in enumerate(zip(xs, ys)) if abs(y - x) <= band})
     return fig
 
 
@@ -534,8 +776,9 @@ def spin_crossings(path_records) -> list[Crossing]:
     return found
 
 
-def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
+def path_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str = "annotated"):
     """Energy against the trans L–M–L angle for each spin (and SP-4 isomer); None without path points."""
+    check_style(style)
     unit = energy_unit(unit).name
     done = [r for r in c.path_records if r.status == "done" and r.relative_kj_mol is not None]
     if not done:
@@ -564,9 +807,9 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
         ax.set_xlim(105, 184.5)
         ax.set_xticks(range(110, 181, 10))
         ax.margins(y=0.18)
-        for angle, name, ha in ((109.47, "T-4", "left"), (180.0, "SP-4", "right")):
-            ax.annotate(name, xy=(angle, 1.0), xycoords=("data", "axes fraction"), xytext=(0, 2),
-                        textcoords="offset points", ha=ha, va="bottom", fontsize=6.5, color=_GREY)
+        ends = ax.secondary_xaxis("top")  # the path's two ends named as tick labels, not as loose text
+        ends.set_xticks([109.47, 180.0], ["T-4", "SP-4"], fontsize=6.5, color=_GREY)
+        ends.tick_params(length=2, color=_GREY, pad=1)
         handles = [Line2D([], [], color=spin_colour(s), marker=spin_marker(s), ms=4, label=multiplicity_word(s))
                    for s in spins]
         if len(isomers) > 1 or isomers[0]:
@@ -574,31 +817,27 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=()):
         if crossings:
             handles.append(Line2D([], [], marker="o", ms=7, mfc="none", mec="black", ls="none", label="spin crossing"))
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2, handlelength=1.8)
-        ax.set_title(f"{formula_unicode(c.formula)}, D$_{{2d}}$ path (held relaxations)", loc="left", pad=12)
         _place_labels(ax, [(x.trans_angle_deg, _in_unit(x.relative_kj_mol, unit)) for x in crossings],
                       [f"≈{x.trans_angle_deg:.0f}°" for x in crossings])
-        notes = _complex_notes(done, c.formula, warnings)
-        if crossings:
-            notes.append("crossings: linear interpolation between neighbouring path points")
-        failed = [r for r in c.path_records if r.status != "done"]
-        if failed:
-            notes.append(f"{len(failed)} path point(s) not computed")
-        _caveats(fig, notes)
+        if style == "annotated":
+            ax.set_title(captions.path_title(c, point_group="D$_{2d}$"), loc="left")
+            _caveats(fig, captions.path_notes(c, warnings, crossings))
     return fig
 
 
 # ---- files ----------------------------------------------------------------------------------------------
 
-def study_figures(comparison, unit: str = "kj") -> dict:
-    """name -> Figure for every figure the comparison supports."""
+def study_figures(comparison, unit: str = "kj", style: str = "annotated") -> dict:
+    """name -> Figure for every figure the comparison supports, in ``style`` (annotated or journal)."""
+    check_style(style)
     figures = {}
     for c in comparison.complexes:
-        figures[f"ladder_{formula_slug(c.formula)}"] = ladder_figure(c, unit, warnings=comparison.warnings)
-        figures[f"d_levels_{formula_slug(c.formula)}"] = d_levels_figure(c)
-        path = path_figure(c, unit, warnings=comparison.warnings)
+        figures[f"ladder_{formula_slug(c.formula)}"] = ladder_figure(c, unit, warnings=comparison.warnings, style=style)
+        figures[f"d_levels_{formula_slug(c.formula)}"] = d_levels_figure(c, style=style)
+        path = path_figure(c, unit, warnings=comparison.warnings, style=style)
         if path is not None:
             figures[f"path_{formula_slug(c.formula)}"] = path
-    parity = parity_figure(comparison, unit)
+    parity = parity_figure(comparison, unit, style=style)
     if parity is not None:
         figures["parity"] = parity
     return figures

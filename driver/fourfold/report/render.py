@@ -2,7 +2,7 @@
 
     tables/      summary, deltas, states, ligand_field, path (.csv, tidy); report.md; one .tex per table and a
                  report.tex that inputs them all; report.json; methods.md and methods.tex (with the md and tex formats)
-                 and references.bib (fourfold.report.methods)
+                 and references.bib (fourfold.report.methods); captions.md (one caption per figure and table)
     figures/     ladder_<complex>, d_levels_<complex>, path_<complex> (with path points), parity; each as .pdf,
                  .svg and 300 dpi .png
     structures/  the final structure of every finished state as extended XYZ (energy, 2S, arrangement, … in
@@ -62,11 +62,11 @@ def write_tables(comparison, folder: Path, unit: str, formats=tab.FORMATS, safet
     return written
 
 
-def write_figures(comparison, folder: Path, unit: str) -> list[Path]:
+def write_figures(comparison, folder: Path, unit: str, figure_style: str = "annotated") -> list[Path]:
     from .figures import save_figure, study_figures
 
     written = []
-    for name, fig in study_figures(comparison, unit).items():
+    for name, fig in study_figures(comparison, unit, figure_style).items():
         written += save_figure(fig, folder / name)
     return written
 
@@ -102,10 +102,14 @@ def write_structures(comparison, results_by_key: dict, folder: Path, unit: str) 
     return written
 
 
-def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS) -> Report:
+def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS,
+                 figure_style: str = "annotated") -> Report:
     """Write tables, figures and structures of ``study`` into ``folder`` from the results in ``store`` (a
-    fourfold.study.store.ResultStore: the folder's results.db or a PostgreSQL store)."""
+    fourfold.study.store.ResultStore: the folder's results.db or a PostgreSQL store); figures in
+    ``figure_style`` (annotated or journal), their captions and the tables' in tables/captions.md."""
     from ..verdict.comparison import build_comparison
+    from .captions import captions_markdown
+    from .figures import check_style
 
     folder = Path(folder)
     unit = energy_unit(unit).name
@@ -114,6 +118,7 @@ def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS) ->
     unknown = [f for f in formats if f not in tab.FORMATS]
     if unknown:
         raise InputError(f"unknown table format {unknown[0]!r}: use {', '.join(tab.FORMATS)}")
+    check_style(figure_style)
     results = {r["job_key"]: r for r in store.results()}
     comparison = build_comparison(study, results)
     report = Report(folder, unit, comparison)
@@ -125,6 +130,10 @@ def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS) ->
 
     methods = methods_files(study, study_versions(folder), comparison, safety, formats)
     report.tables += [_write_text(folder / "tables" / name, text) for name, text in methods.items()]
-    report.figures = write_figures(comparison, folder / "figures", unit)
+    report.figures = write_figures(comparison, folder / "figures", unit, figure_style)
+    if "md" in formats:
+        names = list(dict.fromkeys(p.stem for p in report.figures))
+        captions = captions_markdown(comparison, names, tab.study_tables(comparison, unit), unit)
+        report.tables.append(_write_text(folder / "tables" / "captions.md", captions))
     report.structures = write_structures(comparison, results, folder / "structures", unit)
     return report

@@ -312,7 +312,10 @@ def summary_table(comparison, unit: str) -> Table:
 
 
 def ligand_field_table(comparison) -> Table:
-    """Fitted AOM parameters of the lowest computed state of each arrangement beside the estimate's inputs."""
+    """Fitted AOM parameters of the lowest computed state of each arrangement beside the estimate's inputs; a fit
+    that is not physical (ill-conditioned, poor, or a stored one with a negative e_σ) is withheld with the reason."""
+    from ..field.fit import CONDITION_LIMIT, RESIDUAL_LIMIT_FRACTION
+
     columns = [
         Column("formula", "complex", "complex", "formula"),
         Column("state", "fitted on", "fitted on"),
@@ -322,32 +325,68 @@ def ligand_field_table(comparison) -> Table:
         Column("e_pi_tied", "e_π tied", r"$e_\pi$ tied", "bool"),
         Column("e_sigma_estimate_cm-1", "e_σ est / cm⁻¹", r"$e_\sigma$ est / cm$^{-1}$", "number", 0),
         Column("e_pi_estimate_cm-1", "e_π est / cm⁻¹", r"$e_\pi$ est / cm$^{-1}$", "number", 0),
+        Column("fit_rms_cm-1", "fit rms / cm⁻¹", r"fit rms / cm$^{-1}$", "number", 0),
+        Column("fit_condition_number", "condition", "condition", "number", 1),
+        Column("fit_note", "note", "note"),
         Column("e_sigma_source", "", "", where="data"),
     ]
     rows = []
     for c in comparison.complexes:
-        fitted = _lowest_per_arrangement([r for r in c.held_or_free() if r.fitted_e_sigma_cm])
+        fitted = _lowest_per_arrangement([r for r in c.held_or_free() if r.fitted_e_sigma_cm or r.fit_withheld])
         params = c.estimate.parameters.ligands
-        sources = fitted or [None]
-        for record in sources:
+        for record in fitted or [None]:
+            withheld = None if record is None else _fit_withheld(record)
             for name, p in params.items():
+                shown = record is not None and withheld is None
+                e_sigma = record.fitted_e_sigma_cm.get(name) if shown else None
                 rows.append({
                     "formula": c.formula,
                     "state": None if record is None else _state_words(record.arrangement, record.isomer, record.spin2s),
-                    "ligand": name,
-                    "e_sigma_fitted_cm-1": None if record is None else record.fitted_e_sigma_cm.get(name),
-                    "e_pi_fitted_cm-1": None if record is None else (record.fitted_e_pi_cm or {}).get(name),
-                    "e_pi_tied": None if record is None else record.fit_tied_pi,
+                    "ligand": name, "e_sigma_fitted_cm-1": e_sigma,
+                    "e_pi_fitted_cm-1": (record.fitted_e_pi_cm or {}).get(name) if shown else None,
+                    "e_pi_tied": record.fit_tied_pi if shown else None,
                     "e_sigma_estimate_cm-1": p.e_sigma_cm.value, "e_pi_estimate_cm-1": p.e_pi_cm.value,
+                    "fit_rms_cm-1": None if record is None else record.fit_rms_cm,
+                    "fit_condition_number": None if record is None else record.fit_condition_number,
+                    "fit_note": None if record is None else (f"withheld: {withheld}" if withheld else
+                                                             _fit_remark(record, name, e_sigma, p.e_sigma_cm.value)),
                     "e_sigma_source": p.e_sigma_cm.source,
                 })
-    notes = ["Fits: least squares to the Kohn–Sham d block projected on the metal (e_π tied to e_σ by the "
-             "ligand's default ratio where the arrangement cannot separate them, as in T-4)."]
+    notes = [f"Fits: bounded least squares (e_σ ≥ 0, e_π of the ligand's π sign) to the Kohn–Sham d block projected "
+             "on the metal, of only the parameters it determines (e_π tied to e_σ by the ligand's default ratio where "
+             "the arrangement cannot separate them, as in T-4); withheld when the design's condition number exceeds "
+             f"{CONDITION_LIMIT:.0f}, the rms residual exceeds {100 * RESIDUAL_LIMIT_FRACTION:.0f} % of the d-level "
+             "spread, an e_σ ends at its bound or |e_π| exceeds e_σ.",
+             "Fitted values come from Kohn–Sham orbital energies, whose gap between filled and empty d levels "
+             "carries exchange (wider with more exact exchange): compare their trends between ligands and "
+             "arrangements, not their size with the spectroscopic values the estimate uses."]
     if not any(r["state"] for r in rows):
         notes.append(f"No calculated ligand field at level {comparison.level}: only the estimate's parameters "
                      "are listed (the d block comes from a DFT calculation).")
     return Table("ligand_field", "AOM parameters: fitted to the calculation vs used by the estimate", columns, rows,
                  notes)
+
+
+FIT_ESTIMATE_RATIO_FLAG = 2.0  # a fitted e_σ beyond this factor of the estimate's is remarked on (fourfold default)
+
+
+def _fit_withheld(record) -> str | None:
+    """Why a state's fit is not shown: the fit's own reason, or a fit stored before fits were bounded and checked
+    (no condition number), negative e_σ named."""
+    if record.fit_withheld:
+        return record.fit_withheld
+    if record.fit_condition_number is None:
+        negative = sorted(k for k, v in (record.fitted_e_sigma_cm or {}).items() if v < 0)
+        return ((f"negative e_σ ({', '.join(negative)}); " if negative else "")
+                + "an unchecked fit stored by an earlier fourfold (no condition number): compute the state again")
+    return None
+
+
+def _fit_remark(record, ligand: str, e_sigma, estimate) -> str:
+    remarks = [f"{b} held at 0 by the bound" for b in (record.fit_at_bound or []) if f"({ligand})" in b or b == "e_ds"]
+    if e_sigma and estimate and not 1 / FIT_ESTIMATE_RATIO_FLAG <= e_sigma / estimate <= FIT_ESTIMATE_RATIO_FLAG:
+        remarks.append(f"e_σ {e_sigma / estimate:.1f} × the estimate's")
+    return "; ".join(remarks)
 
 
 def _lowest_per_arrangement(records):

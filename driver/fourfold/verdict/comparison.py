@@ -57,6 +57,10 @@ class StateRecord:
     wall_seconds: float | None = None
     d_level_labels: list | None = None
     fit_tied_pi: bool | None = None
+    fit_rms_cm: float | None = None
+    fit_condition_number: float | None = None
+    fit_withheld: str | None = None  # why the AOM fit of this state's d block is not reported
+    fit_at_bound: list | None = None
     trans_angle_deg: float | None = None  # path points only
     job_key: str | None = None
     geometry_converged: bool | None = None  # the parent relaxation of a single point
@@ -374,7 +378,8 @@ _RESULT_FIELDS = ("energy_hartree", "converged", "reason", "tau4", "tau4_prime",
                   "spin_contaminated", "broken_symmetry", "rung", "cycles", "steps", "d_levels_cm", "d_level_labels",
                   "fitted_e_sigma_cm", "fitted_e_pi_cm", "fit_tied_pi", "wall_seconds", "geometry_converged",
                   "homo_energy_hartree", "aufbau", "projected_energy_hartree", "high_spin_energy_hartree", "starts",
-                  "spread_kj_mol", "start_won", "occupation_matches")
+                  "spread_kj_mol", "start_won", "occupation_matches", "fit_rms_cm", "fit_condition_number",
+                  "fit_withheld", "fit_at_bound")
 
 
 _FREQUENCY_FIELDS = ("frequencies_cm", "n_imaginary", "frequency_level")
