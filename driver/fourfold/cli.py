@@ -169,6 +169,8 @@ _RUN_OPTIONS = [
     click.option("--json", "as_json", is_flag=True, help="Print the comparison as JSON."),
     click.option("--temperature", "temperature_k", type=click.FloatRange(min=0, min_open=True), default=None,
                  help="Temperature of the free energies in K (default: the recipe's temperature_k, else 298.15)."),
+    click.option("--figures", "figure_style", type=click.Choice(("annotated", "journal")), default="annotated",
+                 show_default=True, help="Figure style: journal figures carry no title or caveats (see captions.md)."),
 ]
 
 
@@ -193,7 +195,7 @@ def _with_run_options(function):
 @click.option("--store", "store_url", metavar="postgresql://USER@HOST:PORT/DB",
               help="Keep the results in PostgreSQL instead of results.db in the study folder (extra: postgres).")
 def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, temperature_k,
-        scheduler, cluster_kind, cluster_config, store_url):
+        figure_style, scheduler, cluster_kind, cluster_config, store_url):
     """Run the study in RECIPE (a .toml file), or every state of one --formula; then print the comparison.
 
     Rerunning the same command resumes: finished jobs are never recomputed."""
@@ -212,7 +214,8 @@ def run(recipe, formula, level, out_dir, workers, threads, retry_failed, timeout
     pool = _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config)
     _run_and_print(study, out_dir or Path("outputs") / default_name,
                    dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s,
-                        quiet=quiet, store_url=store_url, pool_factory=pool), as_json, single=bool(formula))
+                        quiet=quiet, store_url=store_url, pool_factory=pool, figure_style=figure_style), as_json,
+                   single=bool(formula))
 
 
 def _at_temperature(study, temperature_k):
@@ -244,7 +247,7 @@ def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
 @click.option("--level", default=None, help="Run the demo at another level (e.g. screen: the whole pipeline in "
                                            "minutes, xTB energies only). Default: the recipe's quick.")
 @_with_run_options
-def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, temperature_k):
+def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, temperature_k, figure_style):
     """Run the bundled demo study (four nickel(II) complexes at the quick level) into outputs/demo."""
     from importlib import resources
     from pathlib import Path
@@ -257,8 +260,8 @@ def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_js
         study = study.with_level(level)  # the folder's recipe.toml is written from the study: it says what ran
         out_dir = out_dir or Path("outputs") / f"demo-{study.level.name}"
     _run_and_print(study, out_dir or Path("outputs") / "demo",
-                   dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s, quiet=quiet),
-                   as_json)
+                   dict(workers=workers, threads=threads, retry_failed=retry_failed, timeout_s=timeout_s, quiet=quiet,
+                        figure_style=figure_style), as_json)
 
 
 _STORE_OPTION = click.option("--store", "store_url", metavar="postgresql://USER@HOST:PORT/DB",
@@ -274,8 +277,10 @@ _STORE_OPTION = click.option("--store", "store_url", metavar="postgresql://USER@
               help="Table format to write (repeatable; default all). Figures and structures are always written.")
 @click.option("--temperature", "temperature_k", type=click.FloatRange(min=0, min_open=True), default=None,
               help="Temperature of the free energies in K (default: the one the study ran with).")
+@click.option("--figures", "figure_style", type=click.Choice(("annotated", "journal")), default="annotated",
+              show_default=True, help="Figure style: journal figures carry no title or caveats (see captions.md).")
 @_STORE_OPTION
-def report(folder, unit, formats, temperature_k, store_url):
+def report(folder, unit, formats, temperature_k, figure_style, store_url):
     """Tables, figures and extended XYZ structures of a study FOLDER, from its store; prints the summary.
 
     Writes FOLDER/tables, FOLDER/figures (PDF, SVG, 300 dpi PNG) and FOLDER/structures."""
@@ -284,7 +289,7 @@ def report(folder, unit, formats, temperature_k, store_url):
     from .study.recipe import load_folder_study
 
     written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"),
-                            temperature_k=temperature_k)
+                            temperature_k=temperature_k, figure_style=figure_style)
     _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     click.echo(report_text(written), nl=False)
 

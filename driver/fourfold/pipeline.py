@@ -47,6 +47,7 @@ class RunOptions:
     store_url: str | None = None
     unit: str = "kj"
     formats: tuple[str, ...] = FORMATS
+    figure_style: str = "annotated"  # or "journal": no titles or caveats in the figures (they go to captions.md)
     pool_factory: Callable | None = None
     progress: Callable | None = None
     on_start: Callable | None = None
@@ -89,12 +90,13 @@ def run_pipeline(study, options: RunOptions) -> Outcome:
                             retry_failed=options.retry_failed, timeout_s=options.timeout_s, progress=options.progress,
                             store_url=options.store_url, pool_factory=options.pool_factory,
                             on_start=options.on_start)
-        report = write_report(out_dir, study, open_store(out_dir, options.store_url), options.unit, options.formats)
+        report = write_report(out_dir, study, open_store(out_dir, options.store_url), options.unit, options.formats,
+                              options.figure_style)
     return Outcome(summary, report)
 
 
 def report_folder(folder, store_url: str | None = None, unit: str = "kj", formats=FORMATS,
-                  temperature_k: float | None = None) -> Report:
+                  temperature_k: float | None = None, figure_style: str = "annotated") -> Report:
     """Write the report of a study folder again (another unit, store or temperature) without running anything."""
     from dataclasses import replace
 
@@ -103,7 +105,7 @@ def report_folder(folder, store_url: str | None = None, unit: str = "kj", format
         study = replace(study, temperature_k=float(temperature_k))
     store = open_store(folder, store_url)
     with RunLock(Path(folder)):
-        return write_report(folder, study, store, unit, formats)
+        return write_report(folder, study, store, unit, formats, figure_style)
 
 
 def folder_status(folder, store_url: str | None = None) -> dict:
