@@ -19,7 +19,7 @@ def test_no_clashes_and_ideal_shapes(formula):
     # no two non-bonded atoms closer than 0.8 × the sum of covalent radii (Pyykkö & Atsumi 2009 radii,
     # from memory); the donor set is the ideal polyhedron: nearest shape S < 0.5 and tau4 of the ideal
     # shape (Yang, Powell, Houser, Dalton Trans. 2007)
-    tau4_ideal = {"T-4": 1.0, "SP-4": 0.0, "SS-4": 0.638, "vTBPY-4": 0.851}
+    tau4_ideal = {"T-4": 1.0, "SP-4": 0.0, "SS-4": 0.638, "trigonal-pyramid": 0.851}
     cx = complex_from_formula(formula)
     for atoms in build_all(cx):
         assert clashes(atoms) == []

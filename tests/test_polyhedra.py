@@ -23,8 +23,8 @@ def pair_angles_deg(vectors):
 
 def test_arrangement_symbols_are_iupac():
     # IUPAC, Nomenclature of Inorganic Chemistry (2005), Table IR-9.3 [V] for T-4, SP-4, SS-4;
-    # vTBPY-4 from Cirera, Alemany, Alvarez, Chem. Eur. J. 2004 [M]
-    assert ARRANGEMENTS == ("T-4", "SP-4", "SS-4", "vTBPY-4")
+    # trigonal-pyramid from Cirera, Alemany, Alvarez, Chem. Eur. J. 2004 [M]
+    assert ARRANGEMENTS == ("T-4", "SP-4", "SS-4", "trigonal-pyramid")
 
 
 @pytest.mark.parametrize("arrangement", ARRANGEMENTS)
@@ -64,8 +64,8 @@ def test_seesaw_is_cis_divacant_octahedron():
 
 
 def test_trigonal_pyramid_is_axially_vacant_tbp():
-    # vTBPY-4: one axial ligand at 90° to three equatorial ones at 120° (C3v), Cirera, Alemany, Alvarez 2004 [C]
-    angles = pair_angles_deg(unit_vectors("vTBPY-4"))
+    # trigonal-pyramid: one axial ligand at 90° to three equatorial ones at 120° (C3v), Cirera, Alemany, Alvarez 2004 [C]
+    angles = pair_angles_deg(unit_vectors("trigonal-pyramid"))
     for (i, j), angle in angles.items():
         assert angle == pytest.approx(90.0 if i == 0 else 120.0, abs=1e-10)
 

@@ -84,7 +84,7 @@ IDEAL_TAU = [
     # (donors, tau4, tau4'): ideal shapes [C] (computed from the published formulas, Yang 2007; Okuniewski 2015)
     ("T-4", 1.0000, 1.0000),
     ("SP-4", 0.0000, 0.0000),
-    ("vTBPY-4", 0.8507, 0.8507),
+    ("trigonal-pyramid", 0.8507, 0.8507),
     ("SS-4", 0.6380, 0.3592),
 ]
 
@@ -105,7 +105,7 @@ def test_tau4_of_sf4_like_seesaw():
     assert tau4_prime(ORIGIN, sf4_seesaw()) == pytest.approx(0.2395, abs=5e-5)
 
 
-@pytest.mark.parametrize("arrangement, headline", [("T-4", 1.00), ("SP-4", 0.00), ("vTBPY-4", 0.85)])
+@pytest.mark.parametrize("arrangement, headline", [("T-4", 1.00), ("SP-4", 0.00), ("trigonal-pyramid", 0.85)])
 def test_tau4_headline_values(arrangement, headline):
     # Yang, Powell, Houser, Dalton Trans. 2007: τ4 = 1.00 Td, 0.00 SP, ≈0.85 trigonal pyramidal [M]
     assert tau4(ORIGIN, unit_vectors(arrangement)) == pytest.approx(headline, abs=0.01)
@@ -154,13 +154,13 @@ def test_tau4_prime_never_exceeds_tau4(seed):
 
 CENTRED_MATRIX = {
     # CShM between ideal shapes, metal included, from the definition of Pinsky & Avnir 1998 [C]
-    ("T-4", "SP-4"): 33.333, ("T-4", "SS-4"): 9.790, ("T-4", "vTBPY-4"): 3.573,
-    ("SP-4", "SS-4"): 19.050, ("SP-4", "vTBPY-4"): 34.875, ("SS-4", "vTBPY-4"): 8.233,
+    ("T-4", "SP-4"): 33.333, ("T-4", "SS-4"): 9.790, ("T-4", "trigonal-pyramid"): 3.573,
+    ("SP-4", "SS-4"): 19.050, ("SP-4", "trigonal-pyramid"): 34.875, ("SS-4", "trigonal-pyramid"): 8.233,
 }
 LIGANDS_ONLY = {
     # the same, ligands only [C]
-    ("T-4", "SP-4"): 33.333, ("T-4", "vTBPY-4"): 2.288, ("T-4", "SS-4"): 7.213,
-    ("SP-4", "SS-4"): 16.737, ("SP-4", "vTBPY-4"): 34.007,
+    ("T-4", "SP-4"): 33.333, ("T-4", "trigonal-pyramid"): 2.288, ("T-4", "SS-4"): 7.213,
+    ("SP-4", "SS-4"): 16.737, ("SP-4", "trigonal-pyramid"): 34.007,
 }
 
 
@@ -329,7 +329,7 @@ def test_geometry_indices_of_tetrahedral_nicl4():
     assert result["nearest_shape"] == "T-4"
     assert result["nearest_shape_measure"] == pytest.approx(0.0, abs=1e-9)
     assert result["shape_measures"]["SP-4"] == pytest.approx(33.333, abs=5e-4)
-    assert result["shape_measures"]["vTBPY-4"] == pytest.approx(3.573, abs=5e-4)
+    assert result["shape_measures"]["trigonal-pyramid"] == pytest.approx(3.573, abs=5e-4)
 
 
 def test_geometry_indices_of_planar_nickel_cyanide():

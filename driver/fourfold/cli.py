@@ -9,8 +9,7 @@ import sys
 import click
 
 from .errors import FourfoldError, InputError
-
-ARRANGEMENT_CHOICES = ("T-4", "SP-4", "SS-4", "vTBPY-4")
+from .geometry.polyhedra import ARRANGEMENTS as ARRANGEMENT_CHOICES  # numpy only: --help stays quick
 
 
 class _Group(click.Group):

@@ -72,7 +72,7 @@ LINEAR_ANGLE_DEG = 150.0
 # alone leave the trans angles free to drift, measured 0.1° at a trans angle of 155°).
 HOLDABLE_ANGLE_DEG = 170.0
 # How many trans L–M–L angles each ideal arrangement has (SS-4: both seesaw definitions have one).
-_TRANS_ANGLES = {"T-4": 0, "SP-4": 2, "SS-4": 1, "vTBPY-4": 0}
+_TRANS_ANGLES = {"T-4": 0, "SP-4": 2, "SS-4": 1, "trigonal-pyramid": 0}
 
 # Largest Cartesian displacement of the start; fixed seed, so runs are reproducible.
 NUDGE_ANGSTROM = 0.02

@@ -57,7 +57,7 @@ def isomers(site_names: tuple[str, ...], arrangement: str,
     """Distinct isomers of four donor sites on an arrangement, with labels a chemist reads.
 
     ``chelate_pairs`` are the pairs of indices into ``site_names`` that one chelate holds.
-    SP-4: 'cis'/'trans' for MA2B2 and MA2BC (the A pair), 'trans-A,B' style for MABCD; SS-4 and vTBPY-4:
+    SP-4: 'cis'/'trans' for MA2B2 and MA2BC (the A pair), 'trans-A,B' style for MABCD; SS-4 and trigonal-pyramid:
     'ax-…' naming the ligands on the axial site(s); T-4 has no isomers of these kinds.
     """
     symmetry = _site_symmetry(arrangement)
@@ -93,6 +93,6 @@ def _label(arrangement: str, names: tuple[str, ...]) -> str:
         return f"trans-{first},{partner}"
     if arrangement == "SS-4":
         return "ax-" + ",".join(sorted((names[0], names[2])))
-    if arrangement == "vTBPY-4":
+    if arrangement == "trigonal-pyramid":
         return f"ax-{names[0]}"
     return "-".join(names)

@@ -1,14 +1,15 @@
 """Ideal four-coordinate polyhedra as unit vectors from a metal at the origin, and the D2d path T-4 -> SP-4.
 
-Symbols are the IUPAC polyhedral symbols (Nomenclature of Inorganic Chemistry 2005, Table IR-9.3); vTBPY-4
-is the axially vacant trigonal bipyramid of the continuous-shape-measure literature.
+Symbols are the IUPAC polyhedral symbols (Nomenclature of Inorganic Chemistry 2005, Table IR-9.3); IUPAC gives
+the axially vacant trigonal bipyramid (C3v) no four-coordinate symbol, so fourfold calls it by a descriptive
+name of its own, "trigonal-pyramid".
 """
 
 import numpy as np
 
 from fourfold.errors import InputError
 
-ARRANGEMENTS = ("T-4", "SP-4", "SS-4", "vTBPY-4")
+ARRANGEMENTS = ("T-4", "SP-4", "SS-4", "trigonal-pyramid")
 
 TETRAHEDRAL_ANGLE_DEG = float(np.degrees(np.arccos(-1.0 / 3.0)))
 
@@ -59,7 +60,7 @@ _UNIT_VECTORS = {
     "T-4": _cube_tetrahedron(),
     "SP-4": np.array([[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [-1.0, 0.0, 0.0], [0.0, -1.0, 0.0]]),
     "SS-4": _seesaw(),
-    "vTBPY-4": _trigonal_pyramid(),
+    "trigonal-pyramid": _trigonal_pyramid(),
 }
 
 
@@ -74,7 +75,7 @@ def unit_vectors(arrangement: str) -> np.ndarray:
       ambiguous (the SF4-like equatorially vacant trigonal bipyramid has (180°, 120°), tau4 0.425); this one
       is used because it is the SS-4 reference of the Alvarez continuous-shape-measure tables, so our
       shape measures compare with theirs.
-    - ``vTBPY-4``: axially vacant trigonal bipyramid (C3v): ligand 0 axial on +z, ligands 1-3 equatorial.
+    - ``trigonal-pyramid``: axially vacant trigonal bipyramid (C3v): ligand 0 axial on +z, ligands 1-3 equatorial.
     """
     try:
         vectors = _UNIT_VECTORS[arrangement]
