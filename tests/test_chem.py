@@ -129,3 +129,15 @@ def test_custom_ligand_from_xyz_usable_in_formula():
         custom_ligand("bad", "N 0 0 0", donor_index=3, charge=0)
     with pytest.raises(InputError, match="XYZ line"):
         custom_ligand("bad", "N 0 0", donor_index=0, charge=0)
+
+
+@pytest.mark.parametrize("formula, says", [
+    ("[NiCl4]-2", "written sign first: write the number, then the sign, e.g. [NiCl4]2-"),
+    ("[NiCl4]2", "has no sign: write [NiCl4]2- or [NiCl4]2+"),
+    ("[NiFoo4]2-", "unknown ligand 'Foo'"),
+])
+def test_formula_errors_point_at_the_mistake(formula, says):
+    # charges are written number-then-sign after the bracket (IUPAC Red Book 2005, IR-4.4, from memory)
+    with pytest.raises(InputError) as caught:
+        complex_from_formula(formula)
+    assert says in str(caught.value) and "\n" not in str(caught.value)

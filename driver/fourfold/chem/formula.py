@@ -53,6 +53,14 @@ def parse_formula(text: str, ligand_names: dict[str, str]) -> ParsedFormula:
 
 
 def _split_charge(original: str, text: str) -> tuple[int, str]:
+    if re.search(r"\][+-]\d+$", text):
+        sign, digits = re.search(r"([+-])(\d+)$", text).groups()
+        raise InputError(f"charge of '{original}' written sign first: write the number, then the sign, e.g. "
+                         f"{text[: text.rindex(']') + 1]}{digits}{sign}")
+    if re.search(r"\]\d+$", text):
+        digits = re.search(r"(\d+)$", text).group(1)
+        body = text[: text.rindex("]") + 1]
+        raise InputError(f"charge '{digits}' of '{original}' has no sign: write {body}{digits}- or {body}{digits}+")
     match = _CHARGE.search(text)
     if not match:
         return 0, text
@@ -80,8 +88,7 @@ def _split_ligands(original: str, rest: str, known: dict[str, str]) -> list[str]
         else:
             token = next((n for n in names if rest.startswith(n, position)), None)
             if token is None:
-                bad = re.match(r"[A-Z][a-z]*|.", rest[position:]).group(0)
-                raise unknown_ligand_error(bad, known)
+                raise unknown_ligand_error(_word_at(rest, position), known)
             position += len(token)
         count_match = re.match(r"\d+", rest[position:])
         count = int(count_match.group(0)) if count_match else 1
@@ -92,6 +99,16 @@ def _split_ligands(original: str, rest: str, known: dict[str, str]) -> list[str]
     if not ligands:
         raise InputError(f"malformed formula '{original}': no ligands after the metal")
     return ligands
+
+
+def _word_at(text: str, position: int) -> str:
+    """The name a reader sees where parsing stopped: the capitalised word around ``position``, so 'NiFoo4'
+    reports 'Foo', not the 'o' left after the ligand F matched."""
+    start = position
+    while start > 0 and not text[start].isupper() and text[start - 1].isalpha():
+        start -= 1
+    found = re.match(r"[A-Z]?[a-z]+|.", text[start:])
+    return found.group(0)
 
 
 def _closing_parenthesis(text: str, start: int) -> int:
