@@ -20,6 +20,7 @@ from __future__ import annotations
 import json
 
 from ..chem.complex import spin_label
+from ..chem.magnetism import spin_only_moment
 from ..chem.notation import formula_slug
 from ..geometry.polyhedra import arrangement_rank
 from ..units import energy_unit
@@ -158,7 +159,7 @@ def complex_table(c, unit: str, warnings: list[str]) -> Table:
         first = by_kind.get("held") or next(iter(by_kind.values()))
         shaped = by_kind.get(shape_kind, first)
         row = {"state": f"{arrangement} {isomer}".strip(), "spin": spin_label(spin2s), "s2": first.s2,
-               "mu_eff": first.mu_eff_spin_only,
+               "mu_eff": spin_only_moment(spin2s),
                "tau4": shaped.tau4, "tau4_prime": shaped.tau4_prime,
                "nearest_shape": shaped.nearest_shape}
         for kind in kinds:
@@ -221,7 +222,7 @@ def _verdicts(c, unit: str) -> list[str]:
         lines.append(f"Populations at {c.temperature_k:g} K from ΔG: "
                      + ", ".join(f"{shape} {share:.0%}" for shape, share in populations.items()) + ".")
     if g is not None:
-        moment = f"Spin-only μ_eff of the ground state: {g.mu_eff_spin_only:.2f} μB"
+        moment = f"Spin-only μ_eff of the ground state: {spin_only_moment(g.spin2s):.2f} μB"
         note = _orbital_note(c, g)
         lines.append(moment + (f"; {note}" if note else "") + ".")
     lines += [f"Warning: {w}." for w in c.verdict_warnings(unit)]
