@@ -20,7 +20,6 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 import argparse  # noqa: E402
 from itertools import product  # noqa: E402
 
-
 import numpy as np  # noqa: E402
 
 from fourfold.chem.complex import complex_from_formula, spin_label  # noqa: E402
@@ -77,7 +76,7 @@ def calibrate() -> None:
         for formula, base, steric, electrostatic, labels, observed in tables:
             energy = base + scale * steric[exponent] + screening * electrostatic
             ground = labels[int(np.argmin(energy))]
-            other = min(e for e, label in zip(energy, labels) if label != ground)
+            other = min(e for e, label in zip(energy, labels, strict=False) if label != ground)
             if observed[int(np.argmin(energy))]:
                 right += 1
                 margins.append(other - energy.min())
@@ -87,7 +86,8 @@ def calibrate() -> None:
     ranked.sort(key=lambda row: (-row[0], -row[1]))
     print(f"{'right':>5s} {'min margin kJ/mol':>17s} {'screening':>9s} {'exponent':>8s} {'scale cm-1':>10s}  missed")
     for right, margin, screening, exponent, scale, missed in ranked[:15]:
-        print(f"{right:>3d}/{len(entries)} {cm_to_kj_mol(margin):17.1f} {screening:9.3f} {exponent:8g} {scale:10d}  {', '.join(missed)}")
+        print(f"{right:>3d}/{len(entries)} {cm_to_kj_mol(margin):17.1f} {screening:9.3f} {exponent:8g} {scale:10d}  "
+              f"{', '.join(missed)}")
     best = ranked[0][0]
     window = [row for row in ranked if row[0] == best]
     print(f"\n{len(window)} of {len(ranked)} grid points reach {best}/{len(entries)}: screening "

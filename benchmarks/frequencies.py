@@ -17,7 +17,6 @@ for _name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
 import argparse  # noqa: E402
 import time  # noqa: E402
 
-
 from fourfold.chem.complex import complex_from_formula  # noqa: E402
 from fourfold.compute.hessian import harmonic_analysis, imaginary_modes, xtb_hessian  # noqa: E402
 from fourfold.compute.relax import relax  # noqa: E402
@@ -50,9 +49,9 @@ def main() -> None:
     for round_index in range(args.rounds):
         for criteria in (order if round_index % 2 == 0 else order[::-1]):
             potential = XtbPotential(start.get_chemical_symbols(), cx.charge, spin2s)
-            outcome, relax_cpu = timed(lambda: relax(start, potential, "free", args.arrangement,
-                                                     convergence=criteria))
-            hessian, hessian_cpu = timed(lambda: xtb_hessian(outcome.atoms, cx.charge, spin2s))
+            outcome, relax_cpu = timed(lambda p=potential, c=criteria: relax(start, p, "free", args.arrangement,
+                                                                             convergence=c))
+            hessian, hessian_cpu = timed(lambda o=outcome: xtb_hessian(o.atoms, cx.charge, spin2s))
             frequencies = harmonic_analysis(outcome.atoms, hessian).frequencies_cm
             relax_sum, hessian_sum = totals.get(criteria, (0.0, 0.0))
             totals[criteria] = (relax_sum + relax_cpu, hessian_sum + hessian_cpu)

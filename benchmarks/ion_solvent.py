@@ -57,7 +57,7 @@ def main() -> None:
             structures = {a: _xtb_structure(cx, a, s) for a, s in states.items()}
             energies, homos = {}, {}
             order = ["gas", "solvent", "solvent", "gas"]  # A B B A over the two states
-            for arrangement, medium in zip(["T-4", "T-4", "SP-4", "SP-4"], order):
+            for arrangement, medium in zip(["T-4", "T-4", "SP-4", "SP-4"], order, strict=False):
                 started = time.process_time()
                 result = run_scf(structures[arrangement], cx.charge, states[arrangement], media[medium])
                 cpu[medium] += time.process_time() - started

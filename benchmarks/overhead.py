@@ -5,7 +5,8 @@ Run: ``benchmarks/overhead.py [--repeats 2] [--level quick]``. The case is SP-4 
 a triplet, so both sides do exactly one UKS SCF (a singlet would add fourfold's stability search,
 which the bare script does not do). Settings come from the level (functional, basis, density fitting,
 grid, convergence, D3(BJ)); both sides run on one thread (OMP and BLAS pinned before numpy loads) from
-PySCF's minao guess, after one untimed warm-up each (module loading). The two runs alternate in the order A B B A … to cancel drift in machine load;
+PySCF's minao guess, after one untimed warm-up each (module loading). The two runs alternate in the order
+A B B A … to cancel drift in machine load;
 wall and CPU seconds are summed per side. Prints the runs, then the wall ratio last (target ≤ 1.05).
 """
 
@@ -18,7 +19,6 @@ import argparse  # noqa: E402
 import time  # noqa: E402
 
 import numpy as np  # noqa: E402
-
 from ase import Atoms  # noqa: E402
 
 from fourfold.compute.levels import get_level  # noqa: E402
@@ -42,7 +42,7 @@ def bare_pyscf(atoms, level, charge=CHARGE, spin2s=SPIN2S):
     from pyscf import dft, gto, lib
 
     lib.num_threads(1)
-    mol = gto.M(atom=[(s, tuple(p)) for s, p in zip(atoms.get_chemical_symbols(), atoms.positions)],
+    mol = gto.M(atom=[(s, tuple(p)) for s, p in zip(atoms.get_chemical_symbols(), atoms.positions, strict=False)],
                 basis=level.basis, charge=charge, spin=spin2s, verbose=0)
     mf = dft.UKS(mol) if spin2s else dft.RKS(mol)
     if level.density_fit:

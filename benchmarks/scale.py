@@ -7,7 +7,8 @@ study (GFN2-xTB held relaxations of four-coordinate chlorides: 4 independent job
 waits on another) through `--scheduler`'s pool, first on one worker, then on two (each run into a fresh
 folder, so nothing is skipped). With --rounds > 1 the order alternates (1,2 then 2,1 ...) so drift in
 the machine's load falls on both sides. Prints one line per run (jobs/min, CPU seconds per job, cores
-kept busy), then the ratio (2 workers / 1 worker) last. Target on a 2-core machine: ≥ 1.7×. Wall times on a shared machine move with its other load.
+kept busy), then the ratio (2 workers / 1 worker) last. Target on a 2-core machine: ≥ 1.7×. Wall times on a
+shared machine move with its other load.
 """
 
 import argparse
@@ -22,9 +23,9 @@ import tempfile
 import time
 from pathlib import Path
 
+from fourfold.pipeline import RunOptions, run_pipeline
 from fourfold.study.cluster import pool_factory
 from fourfold.study.recipe import parse_recipe
-from fourfold.pipeline import RunOptions, run_pipeline
 
 COMPLEXES = ("[NiCl4]2-", "[PdCl4]2-", "[PtCl4]2-", "[NiBr4]2-")
 

@@ -14,8 +14,8 @@ import tempfile
 import time
 from pathlib import Path
 
-from fourfold.study.recipe import load_recipe
 from fourfold.pipeline import RunOptions, run_pipeline
+from fourfold.study.recipe import load_recipe
 
 SETTINGS = {"2 workers x 1 thread": (2, 1), "1 worker x 2 threads": (1, 2)}
 

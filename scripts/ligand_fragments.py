@@ -24,6 +24,7 @@ from pathlib import Path
 
 import numpy as np
 from ase import Atoms
+
 from fourfold.chem.ligands import covalent_radius_angstrom
 from fourfold.compute.relax import relax
 from fourfold.compute.xtb_engine import XtbPotential
@@ -225,8 +226,8 @@ def bridged(donor_symbol, carbons, substituent, rng, bite, distance):
     chain = backbone(model, donors, rng.choice([-1, 1]) * 0.35, donor_symbol, carbons)
     if substituent is not None:
         builder, bond = substituent
-        for donor, first in zip(donors, (chain[0], chain[-1])):
-            for k, angle in enumerate((rng.normal(60, 10), rng.normal(-60, 10))):
+        for donor, first in zip(donors, (chain[0], chain[-1]), strict=False):
+            for angle in (rng.normal(60, 10), rng.normal(-60, 10)):
                 torsion = 180.0 + angle
                 if builder is methyl:
                     methyl(model, donor, metal, first, bond, 115, torsion)
@@ -247,7 +248,7 @@ def bipyridine(rng, bite, distance):
         nitrogens.append(carbon + step * np.array([1, sign, 1]))
         carbons.append(carbon)
     donors = [model.add("N", position) for position in nitrogens]
-    for sign, nitrogen, carbon, other in zip((1, -1), nitrogens, carbons, carbons[::-1]):
+    for nitrogen, carbon, other in zip(nitrogens, carbons, carbons[::-1], strict=False):
         model.add("C", carbon)
         for position in hexagon(carbon, nitrogen, other):
             model.add("C", position, 1, True)
@@ -432,11 +433,12 @@ def write_atoms(name: str, symbols, positions, distance_angstrom=None) -> None:
         raise SystemExit(f"{name}: no [{name}] table in {DATA}")
     start = text.index("atoms = [", header.end())
     end = text.index("\n]\n", start) + 3
-    rows = "\n".join(f'  ["{s}", {x:.4f}, {y:.4f}, {z:.4f}],' for s, (x, y, z) in zip(symbols, positions))
+    rows = "\n".join(f'  ["{s}", {x:.4f}, {y:.4f}, {z:.4f}],' for s, (x, y, z) in zip(symbols, positions, strict=False))
     block = f"atoms = [\n{rows}\n]\n"
     table = text[header.end():start]
     if distance_angstrom is not None:
-        table = re.sub(r"^distance_angstrom = .*\n", "", table, flags=re.MULTILINE) + f"distance_angstrom = {distance_angstrom:.3f}\n"
+        table = (re.sub(r"^distance_angstrom = .*\n", "", table, flags=re.MULTILINE)
+                 + f"distance_angstrom = {distance_angstrom:.3f}\n")
     DATA.write_text(text[:header.end()] + table + block + text[end:])
 
 

@@ -19,6 +19,8 @@ from pathlib import Path
 
 import pytest
 
+from conftest import run_fourfold as fourfold
+
 RECIPE = """
 title = "cluster"
 level = "screen"
@@ -45,7 +47,6 @@ WORKER_FAULTS = "hang:[PdCl4]2- SP-4 2S=0,kill-worker:[PdCl4]2- SP-4 2S=2"
 ENERGY_TOLERANCE_HARTREE = 1e-8  # fourfold's bar: same energies within 1e-8 Eh
 
 
-from conftest import run_fourfold as fourfold
 
 
 def start_fourfold(*args):

@@ -5,7 +5,7 @@ import pytest
 
 from fourfold.chem.complex import complex_from_formula
 from fourfold.errors import InputError
-from fourfold.field.aom import aom_matrix, d_levels, D_ORBITALS
+from fourfold.field.aom import D_ORBITALS, aom_matrix, d_levels
 from fourfold.field.estimate import estimate, occupations, pairing_energy_cm, parse_overrides, repulsion_energy_cm
 from fourfold.geometry.polyhedra import unit_vectors
 

@@ -295,7 +295,7 @@ def test_path_figure_in_journal_style_names_its_ends_as_ticks():
                                   _record("[NiCl4]2-", "SP-4", "", 0, -9.99)])
     angles = [109.47, 144.7, 180.0]
     for spin2s, energies in ((2, [-10.0, -9.995, -9.985]), (0, [-9.98, -9.992, -9.99])):
-        for angle, energy in zip(angles, energies):
+        for angle, energy in zip(angles, energies, strict=False):
             c.path_records.append(_record("[NiCl4]2-", "SP-4", "", spin2s, energy, trans_angle_deg=angle,
                                           relative_kj_mol=(energy + 10.0) * HARTREE_KJ_MOL))
     fig = figures.path_figure(c, "kj", style="journal")

@@ -5,8 +5,16 @@ import copy
 import pytest
 
 from fourfold.chem.complex import complex_from_formula
-from fourfold.chem.hazards import (CLOSING_LINES, COMPUTED_IS_NOT_EXPERIMENT, DEFERRAL, cautions_for,
-                                   cautions_markdown, cautions_text, hazard_table, parse_hazard_table)
+from fourfold.chem.hazards import (
+    CLOSING_LINES,
+    COMPUTED_IS_NOT_EXPERIMENT,
+    DEFERRAL,
+    cautions_for,
+    cautions_markdown,
+    cautions_text,
+    hazard_table,
+    parse_hazard_table,
+)
 from fourfold.chem.ligands import custom_ligand
 from fourfold.data import load_table
 from fourfold.errors import InputError

@@ -7,8 +7,15 @@ from ase.build import molecule
 from scipy.optimize import minimize
 
 from fourfold.chem.complex import complex_from_formula
-from fourfold.compute.hessian import (STEP_ANGSTROM, displace_along, displacements, harmonic_analysis,
-                                      hessian_from_gradients, imaginary_modes, xtb_hessian)
+from fourfold.compute.hessian import (
+    STEP_ANGSTROM,
+    displace_along,
+    displacements,
+    harmonic_analysis,
+    hessian_from_gradients,
+    imaginary_modes,
+    xtb_hessian,
+)
 from fourfold.compute.levels import Level
 from fourfold.compute.pyscf_engine import PyscfPotential, energy_gradient, energy_hessian
 from fourfold.compute.relax import relax

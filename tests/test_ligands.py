@@ -3,15 +3,16 @@ builds without clashes, held relaxations that keep the arrangement but not the b
 
 import numpy as np
 import pytest
+
 from fourfold.chem.complex import complex_from_formula
-from fourfold.field.ligand_library import hill_formula, ligand_entry, ligand_table
-from fourfold.report.text import ligands_text
 from fourfold.chem.ligands import bundled_ligands, custom_ligand
 from fourfold.errors import InputError
+from fourfold.field.ligand_library import hill_formula, ligand_entry, ligand_table
 from fourfold.geometry.builder import build, build_all, build_path_point, clashes
 from fourfold.geometry.cone import cone_angle_deg
 from fourfold.geometry.isomers import isomers_of
 from fourfold.geometry.shape import geometry_indices
+from fourfold.report.text import ligands_text
 
 MONODENTATE = ["PPh3", "PCy3", "PtBu3", "P(OMe)3", "PMe2Ph", "AsPh3", "NMe3", "MeCN", "CNMe", "OAc"]
 CHELATES = ["en", "tmeda", "bipy", "phen", "acac", "dppe", "dppp", "dmpe", "ox", "dmg"]

@@ -64,9 +64,10 @@ def test_seesaw_is_cis_divacant_octahedron():
 
 
 def test_trigonal_pyramid_is_axially_vacant_tbp():
-    # trigonal-pyramid: one axial ligand at 90° to three equatorial ones at 120° (C3v), Cirera, Alemany, Alvarez 2004 [C]
+    # trigonal-pyramid: one axial ligand at 90° to three equatorial ones at 120° (C3v), Cirera, Alemany, Alvarez 2004
+    # [C]
     angles = pair_angles_deg(unit_vectors("trigonal-pyramid"))
-    for (i, j), angle in angles.items():
+    for (i, _), angle in angles.items():
         assert angle == pytest.approx(90.0 if i == 0 else 120.0, abs=1e-10)
 
 

@@ -15,6 +15,7 @@ import subprocess
 import numpy as np
 import pytest
 
+from conftest import run_fourfold as fourfold
 from fourfold.compute.xtb_engine import XTB_SPIN_WARNING
 from fourfold.study.recipe import parse_recipe
 from fourfold.study.runner import run_study
@@ -52,7 +53,6 @@ formula = "[NiCl4]2-"
 """
 
 
-from conftest import run_fourfold as fourfold
 
 
 @pytest.fixture(scope="module")
@@ -139,7 +139,7 @@ def test_every_tidy_table_round_trips_through_csv(studies):
         assert text == to_csv(table)
         back = list(csv.DictReader(text.splitlines()))
         assert len(back) == len(table.rows)
-        for row, read in zip(table.rows, back):
+        for row, read in zip(table.rows, back, strict=False):
             for key, cell in read.items():
                 value = row.get(key)
                 if isinstance(value, float):
@@ -299,7 +299,7 @@ def test_run_writes_the_report_and_the_path_figure_marks_the_spin_crossing(studi
     # crossings recomputed: where E(singlet) − E(triplet) changes sign between neighbouring angles, linearly
     energy = {(round(float(r["trans_angle_deg"]), 4), int(r["spin2s"])): float(r["energy_hartree"]) for r in rows}
     expected = []
-    for left, right in zip(angles, angles[1:]):
+    for left, right in zip(angles, angles[1:], strict=False):
         d0 = energy[(round(left, 4), 0)] - energy[(round(left, 4), 2)]
         d1 = energy[(round(right, 4), 0)] - energy[(round(right, 4), 2)]
         if d0 * d1 < 0:

@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pytest
 
+from conftest import run_fourfold as fourfold
 from fourfold.errors import InputError
 from fourfold.study.jobs import expand
 from fourfold.study.recipe import load_recipe, parse_recipe
@@ -33,7 +34,6 @@ formula = "[PdCl4]2-"
 """
 
 
-from conftest import run_fourfold as fourfold
 
 
 @pytest.fixture()
@@ -69,8 +69,8 @@ def test_sigkill_then_resume_recomputes_nothing(tmp_path, recipe):
     reference = tmp_path / "reference"
     assert fourfold("run", str(recipe), "--out", str(reference), "--quiet").returncode == 0
     folder = tmp_path / "killed"
-    process = subprocess.Popen([sys.executable, "-m", "fourfold.cli", "run", str(recipe), "--out", str(folder), "--quiet"],
-                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    process = subprocess.Popen([sys.executable, "-m", "fourfold.cli", "run", str(recipe), "--out", str(folder),
+                                "--quiet"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
     deadline = time.time() + 300
     while time.time() < deadline and (not (folder / "results.db").exists() or len(_rows(folder)) < 3):
         time.sleep(0.2)
@@ -110,8 +110,8 @@ def test_failures_are_recorded_and_others_finish(tmp_path, recipe):
 
 def test_second_run_on_same_folder_refuses(tmp_path, recipe):
     folder = tmp_path / "locked"
-    first = subprocess.Popen([sys.executable, "-m", "fourfold.cli", "run", str(recipe), "--out", str(folder), "--quiet"],
-                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    first = subprocess.Popen([sys.executable, "-m", "fourfold.cli", "run", str(recipe), "--out", str(folder),
+                              "--quiet"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
     try:
         deadline = time.time() + 60
         while time.time() < deadline and not (folder / "run.lock").exists():
@@ -145,7 +145,8 @@ BAD_RECIPES = [
     ("[[complex]]\nformula = '[NiCl4]2-'\nestimate = { 'Br.e_sigma' = 3 }\n", "cannot override 'Br.e_sigma'"),
     ("[ligands.X]\nxyz = 'N 0 0 0'\ncharge = 0\n[[complex]]\nformula = '[NiX4]2+'\n", "missing 'donor_index'"),
     ("[[complex]]\nmetal = 'Ni'\nligands = ['Cl', 'Cl', 'Cl', 'Cl']\n", "'oxidation_state' is missing"),
-    ("[[complex]]\nmetal = 'Ni'\noxidation_state = 2\nligands = ['Cl','Cl','Cl','Cl']\ncharge = 0\n", "charge does not add up"),
+    ("[[complex]]\nmetal = 'Ni'\noxidation_state = 2\nligands = ['Cl','Cl','Cl','Cl']\ncharge = 0\n",
+     "charge does not add up"),
     ("solvent = 'lava'\n[[complex]]\nformula = '[NiCl4]2-'\n", "unknown solvent 'lava'"),
     ("[run]\nworkers = 0\n[[complex]]\nformula = '[NiCl4]2-'\n", "must be positive"),
     ("[level]\nbase = 'quick'\nfunctionl = 'pbe0'\n[[complex]]\nformula = '[NiCl4]2-'\n", "functionl"),

@@ -7,13 +7,17 @@ from ase import Atoms
 from fourfold.chem.complex import complex_from_formula
 from fourfold.compute.hessian import harmonic_analysis, xtb_hessian
 from fourfold.compute.relax import relax
-from fourfold.compute.thermo import (free_rotor_entropy_j_mol_k, harmonic_entropy_j_mol_k, qrrho_entropy_j_mol_k,
-                                     qrrho_weight, thermochemistry)
+from fourfold.compute.thermo import (
+    free_rotor_entropy_j_mol_k,
+    harmonic_entropy_j_mol_k,
+    qrrho_entropy_j_mol_k,
+    qrrho_weight,
+    thermochemistry,
+)
 from fourfold.compute.xtb_engine import XtbPotential
 from fourfold.errors import InputError
 from fourfold.geometry.builder import build
-from fourfold.units import (ATOMIC_MASS_KG, HARTREE_EV, HARTREE_KJ_MOL, convert_energy,
-                            hartree_per_kelvin_to_j_mol_k)
+from fourfold.units import ATOMIC_MASS_KG, HARTREE_EV, HARTREE_KJ_MOL, convert_energy, hartree_per_kelvin_to_j_mol_k
 
 
 def diatomic(symbols, distance_angstrom):

@@ -73,7 +73,12 @@ class Complex:
     def check_spin(self, spin2s: int) -> int:
         if spin2s not in self.allowed_spin2s:
             allowed = ", ".join(str(s) for s in self.allowed_spin2s)
-            why = ("wrong parity" if (spin2s - self.d_electrons) % 2 else "more unpaired electrons than d" f"{self.d_electrons} allows") if spin2s >= 0 else "negative"
+            if spin2s < 0:
+                why = "negative"
+            elif (spin2s - self.d_electrons) % 2:
+                why = "wrong parity"
+            else:
+                why = f"more unpaired electrons than d{self.d_electrons} allows"
             raise InputError(
                 f"2S = {spin2s} is impossible for {self.formula} (d{self.d_electrons}, {why}): use one of {allowed}"
             )

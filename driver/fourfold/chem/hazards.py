@@ -285,7 +285,7 @@ def _entries_for(table: HazardTable, subject: _Subject) -> list[Entry]:
     superseded = set().union(*(c.supersedes for c in fired))
     entries = [c.entry for c in fired]
     elements = {subject.metal}
-    for ligand, family in zip(subject.ligands, families):
+    for ligand, family in zip(subject.ligands, families, strict=False):
         if family is None:  # a ligand the table does not know: its atoms are all we can judge it by
             elements.update(ligand.atoms)
             entries.append(_unlisted(ligand.name))

@@ -43,9 +43,10 @@ TOML has no null.
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import cache
-from typing import Any, Mapping
+from typing import Any
 
 from ..data import load_table
 from ..errors import InputError

@@ -225,7 +225,7 @@ def _stretched(positions_angstrom: np.ndarray, metal_index: int, donor_indices: 
     """Each donor moved along its M–L axis (held start): bond lengths change, L–M–L angles do not."""
     rng = np.random.default_rng(_NUDGE_SEED)
     out = positions_angstrom.copy()
-    for donor, shift_angstrom in zip(donor_indices, rng.uniform(-NUDGE_ANGSTROM, NUDGE_ANGSTROM, 4)):
+    for donor, shift_angstrom in zip(donor_indices, rng.uniform(-NUDGE_ANGSTROM, NUDGE_ANGSTROM, 4), strict=False):
         bond = out[donor] - out[metal_index]
         out[donor] += shift_angstrom * bond / np.linalg.norm(bond)
     return out

@@ -310,8 +310,8 @@ def _homo_energy_hartree(scf) -> float | None:
 
 def scf_summary(scf) -> dict:
     """The plain-data fields of an SCF result that reports need."""
-    return {"homo_energy_hartree": _homo_energy_hartree(scf), "rung": scf.rung, "cycles": scf.cycles, "s2": scf.s2, "s2_expected": scf.s2_expected,
-            "spin_contaminated": scf.spin_contaminated, "broken_symmetry": scf.broken_symmetry,
+    return {"homo_energy_hartree": _homo_energy_hartree(scf), "rung": scf.rung, "cycles": scf.cycles, "s2": scf.s2,
+            "s2_expected": scf.s2_expected, "spin_contaminated": scf.spin_contaminated, "broken_symmetry": scf.broken_symmetry,
             "homo_lumo_gap_hartree": scf.homo_lumo_gap_hartree, "aufbau": scf.aufbau, "scf_notes": list(scf.notes),
             "dispersion_hartree": scf.dispersion_hartree}
 

@@ -35,8 +35,17 @@ import numpy as np
 
 from ..errors import InputError
 from ..geometry.symmetry import is_linear, symmetry_number
-from ..units import (AVOGADRO_PER_MOL, BAR_PASCAL, BOLTZMANN_JOULE_PER_K, GAS_CONSTANT_J_PER_MOL_K, HARTREE_EV,
-                     HARTREE_JOULE, PLANCK_JOULE_SECOND, SPEED_OF_LIGHT_M_PER_S, convert_energy)
+from ..units import (
+    AVOGADRO_PER_MOL,
+    BAR_PASCAL,
+    BOLTZMANN_JOULE_PER_K,
+    GAS_CONSTANT_J_PER_MOL_K,
+    HARTREE_EV,
+    HARTREE_JOULE,
+    PLANCK_JOULE_SECOND,
+    SPEED_OF_LIGHT_M_PER_S,
+    convert_energy,
+)
 from .hessian import IMAGINARY_THRESHOLD_CM, imaginary_modes
 
 STANDARD_TEMPERATURE_K = 298.15

@@ -74,7 +74,7 @@ def aom_matrix(directions, e_sigma, e_pi, e_ds: float = 0.0) -> np.ndarray:
     e_pi = np.broadcast_to(np.asarray(e_pi, dtype=float), (count,))
     matrix = np.zeros((5, 5))
     sigma_sum = np.zeros(5)
-    for direction, es, ep in zip(directions, e_sigma, e_pi):
+    for direction, es, ep in zip(directions, e_sigma, e_pi, strict=False):
         f_sigma, f_pi = overlap_factors(direction)
         matrix += es * np.outer(f_sigma, f_sigma) + ep * (f_pi.T @ f_pi)
         sigma_sum += f_sigma

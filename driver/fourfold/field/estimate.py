@@ -358,7 +358,7 @@ def ligand_field_matrix_cm(directions: np.ndarray, per_site: list[LigandParamete
     matrix = aom_matrix(directions, e_sigma, e_pi)
     # d–s mixing with ligand-specific strengths: −(Σ_L √e_ds,L F_σ,L)(…)ᵀ, equal ligands give the usual form
     weights = np.sqrt(np.clip(e_ds_ratio * e_sigma, 0.0, None))
-    sigma_sum = sum(w * overlap_factors(d)[0] for w, d in zip(weights, directions))
+    sigma_sum = sum(w * overlap_factors(d)[0] for w, d in zip(weights, directions, strict=False))
     return matrix - np.outer(sigma_sum, sigma_sum)
 
 

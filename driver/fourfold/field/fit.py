@@ -126,9 +126,9 @@ def fit_aom(matrix_cm: np.ndarray, directions: np.ndarray, ligand_names, pi_rati
     lower, upper = _bounds(labels, ratios)
     solved = lsq_linear(design, target, bounds=(lower, upper), method="bvls")
     solution = solved.x
-    at_bound = tuple(_name(label) for label, active in zip(labels, solved.active_mask) if active != 0)
+    at_bound = tuple(_name(label) for label, active in zip(labels, solved.active_mask, strict=False) if active != 0)
     rms = float(np.sqrt(np.mean((design @ solution - target) ** 2)))
-    values = dict(zip(labels, (float(v) for v in solution)))
+    values = dict(zip(labels, (float(v) for v in solution), strict=False))
     e_sigma = {k: values[("sigma", k)] for k in kinds}
     e_pi = {k: e_sigma[k] * ratios.get(k, 0.0) for k in kinds} if tied else {k: values[("pi", k)] for k in kinds}
     problems = _unphysical(rms, float(np.ptp(np.linalg.eigvalsh(matrix_cm))), e_sigma, e_pi, at_bound)

@@ -10,9 +10,9 @@ from __future__ import annotations
 
 from collections import Counter
 
-from ..geometry.cone import donor_cone_angles_deg
 from ..chem.ligands import Ligand, bundled_ligands, covalent_radius_angstrom, ligand_lookup, unknown_ligand_error
 from ..chem.metals import Sourced, get_metal
+from ..geometry.cone import donor_cone_angles_deg
 
 REFERENCE_ION = ("Ni", 2)
 

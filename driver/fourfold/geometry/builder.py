@@ -71,7 +71,7 @@ def build(cx: Complex, arrangement: str, isomer: str | Isomer | None = None,
     chosen = isomer if isinstance(isomer, Isomer) else isomer_by_label(cx, arrangement, isomer)
     axes = donor_directions(cx, chosen, directions)
     sites = [cx.sites[i] for i in chosen.order]
-    donors = np.array([ml_distance_angstrom(cx, cx.ligands[i], k) * axis for (i, k), axis in zip(sites, axes)])
+    donors = np.array([ml_distance_angstrom(cx, cx.ligands[i], k) * axis for (i, k), axis in zip(sites, axes, strict=False)])
     symbols = [cx.metal.symbol] + [cx.ligands[i].donors[k] for i, k in sites]
     positions = [np.zeros(3), *donors]
     fragment_of = [-1] + [i for i, _ in sites]

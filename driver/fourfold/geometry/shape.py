@@ -9,8 +9,9 @@
 from __future__ import annotations
 
 import itertools
-from functools import lru_cache
-from typing import TYPE_CHECKING, Sequence
+from collections.abc import Sequence
+from functools import cache
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -107,7 +108,7 @@ def tau4_prime(metal_angstrom, donors_angstrom) -> float:
     return _tau4_prime(*_two_largest(ligand_angles_deg(metal_angstrom, donors_angstrom)))
 
 
-@lru_cache(maxsize=None)
+@cache
 def _permutations(n: int) -> np.ndarray:
     perms = np.array(list(itertools.permutations(range(n))), dtype=np.intp)
     perms.setflags(write=False)
@@ -161,7 +162,7 @@ def cshm(points, reference) -> float:
 
 def _shape_measures(metal: np.ndarray, donors: np.ndarray) -> dict[str, float]:
     values = _cshm_batch(np.vstack([metal, donors]), _CENTRED_REFERENCES, centre_fixed=True)
-    return {name: float(value) for name, value in zip(ARRANGEMENTS, values)}
+    return {name: float(value) for name, value in zip(ARRANGEMENTS, values, strict=False)}
 
 
 def shape_measures(metal_angstrom, donors_angstrom) -> dict[str, float]:

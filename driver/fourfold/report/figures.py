@@ -194,11 +194,11 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str
                     continue
                 x0, x1 = (i - inner - width, i - inner) if side < 0 else (i + inner, i + inner + width)
                 energies = [table[k] for k in keys]
-                for key, energy in zip(keys, energies):
+                for key, energy in zip(keys, energies, strict=False):
                     ax.plot([x0, x1], [energy, energy], color=spin_colour(key[2]), lw=2.0, solid_capstyle="butt",
                             gid=f"{'calc' if side < 0 else 'est'}:{_group_label(group)}:{key[2]}")
                 label_x = x0 - 0.025 if side < 0 else x1 + 0.025
-                for key, y, energy in zip(keys, _spread(energies, gap), energies):
+                for key, y, energy in zip(keys, _spread(energies, gap), energies, strict=False):
                     mark = marks.get(key, "") if side < 0 else ""
                     labels.append(ax.text(label_x, y, f"{key[2] + 1}{mark}", color=spin_colour(key[2]), fontsize=6.5,
                                           fontweight="bold", ha="right" if side < 0 else "left", va="center",
@@ -247,7 +247,7 @@ def _part_neighbours(ax, gaps) -> None:
         boxes = [label.get_window_extent(renderer) for label, _ in placed]
         if any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:]):
             height = 1.15 * max(box.height for box in boxes) * per_px
-            for (label, _), y in zip(placed, _spread([energy for _, energy in placed], height)):
+            for (label, _), y in zip(placed, _spread([energy for _, energy in placed], height), strict=False):
                 label.set_y(y)
 
 
@@ -336,7 +336,7 @@ def _column_layout(levels_k, labels, tolerance_k, arrow_len, row_gap) -> _Column
         else:
             rows.append([k])
     if len(rows) > 1:  # arrows of neighbouring rows stop short of each other
-        closest = min(heights[row[0]] - heights[below[-1]] for below, row in zip(rows, rows[1:]))
+        closest = min(heights[row[0]] - heights[below[-1]] for below, row in zip(rows, rows[1:], strict=False))
         arrow_len = min(arrow_len, 0.9 * closest)
     offsets, half_widths = {}, []
     for row in rows:
@@ -370,7 +370,7 @@ def _draw_levels(ax, x_centre, column: _Column, electrons, colour, label_side) -
 
     width, length = LEVEL_WIDTH, column.arrow_len
     texts = []
-    for row, name, half_width in zip(column.rows, column.names, column.row_half_widths):
+    for row, name, half_width in zip(column.rows, column.names, column.row_half_widths, strict=False):
         for k in row:
             y = column.heights[k]
             for index in column.sets[k]:
@@ -378,7 +378,7 @@ def _draw_levels(ax, x_centre, column: _Column, electrons, colour, label_side) -
                 ax.plot([x - width / 2, x + width / 2], [y, y], color=colour, lw=1.6, solid_capstyle="butt",
                         gid="d-level")
                 spins = electrons[index]
-                for dx, spin in zip((0.0,) if len(spins) == 1 else (-width / 4.5, width / 4.5), spins):
+                for dx, spin in zip((0.0,) if len(spins) == 1 else (-width / 4.5, width / 4.5), spins, strict=False):
                     ax.add_patch(FancyArrowPatch((x + dx, y - spin * length / 2), (x + dx, y + spin * length / 2),
                                                  arrowstyle="-|>,head_length=0.45,head_width=0.2", mutation_scale=6.0,
                                                  lw=0.7, color="black", shrinkA=0, shrinkB=0,
@@ -501,7 +501,7 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
             layouts.append((est, dft))
         # panels as wide as their labels and columns need, so long labels never squeeze a panel's bars
         needs = [_panel_need_pt(fig, est, dft, _panel_name(group, state))
-                 for (est, dft), (group, state, _) in zip(layouts, panels)]
+                 for (est, dft), (group, state, _) in zip(layouts, panels, strict=False)]
         axes = fig.subplots(1, len(groups), sharey=True, squeeze=False, gridspec_kw={"width_ratios": needs})[0]
         axes[0].set_ylabel("d-orbital energy / 10³ cm⁻¹")
         for ax in axes[1:]:
@@ -512,7 +512,7 @@ def d_levels_figure(c, columns: int | None = None, style: str = "annotated"):
             ax.set_xticks([0.0], ["AOM est."])  # the final ticks' row of text, for the layout below
         _settle(fig)  # the panels' widths, for the gap between columns
         fitting = []
-        for ax, (group, state, record), (est, dft) in zip(axes, panels, layouts):
+        for ax, (group, state, record), (est, dft) in zip(axes, panels, layouts, strict=False):
             left = _draw_levels(ax, 0.0, est, _electrons(state.occupation, False), OKABE_ITO["blue"], -1)
             ticks, names, right, edge = [0.0], ["AOM est."], [], est.half_width + 0.1
             if record is not None:
@@ -710,7 +710,7 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
         ax.plot([lo, hi], [lo, hi], color="black", lw=0.8, ls="--", zorder=2)
         ax.axhline(0, color=_GREY, lw=0.5, zorder=1)
         ax.axvline(0, color=_GREY, lw=0.5, zorder=1)
-        for x, y, (_, _, _, agree) in zip(xs, ys, points):
+        for x, y, (_, _, _, agree) in zip(xs, ys, points, strict=False):
             ax.plot(x, y, marker="o" if agree else "^", ms=5, ls="none", zorder=3, mec="black", mew=0.5,
                     color=OKABE_ITO["blue"] if agree else OKABE_ITO["vermillion"], gid="parity-point")
         ax.set_xlim(lo, hi)
@@ -736,9 +736,9 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
         quadrants = []
         if style == "annotated":
             _caveats(fig, captions.parity_notes(comparison))
-            quadrants = _quadrant_captions(ax, list(zip(xs, ys)), keep_out)
-        _place_labels(ax, list(zip(xs, ys)), [formula_unicode(p[0]) for p in points], obstacles=quadrants,
-                      keep_out=keep_out, first={i for i, (x, y) in enumerate(zip(xs, ys)) if abs(y - x) <= band})
+            quadrants = _quadrant_captions(ax, list(zip(xs, ys, strict=False)), keep_out)
+        _place_labels(ax, list(zip(xs, ys, strict=False)), [formula_unicode(p[0]) for p in points], obstacles=quadrants,
+                      keep_out=keep_out, first={i for i, (x, y) in enumerate(zip(xs, ys, strict=False)) if abs(y - x) <= band})
     return fig
 
 
@@ -765,7 +765,7 @@ def spin_crossings(path_records) -> list[Crossing]:
         for i, a in enumerate(spins):
             for b in spins[i + 1:]:
                 angles = sorted(set(curves[a]) & set(curves[b]))
-                for left, right in zip(angles, angles[1:]):
+                for left, right in zip(angles, angles[1:], strict=False):
                     d0 = curves[a][left] - curves[b][left]
                     d1 = curves[a][right] - curves[b][right]
                     if d0 * d1 < 0:
@@ -795,7 +795,7 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str =
                 curve = sorted((r.trans_angle_deg, _in_unit(r.relative_kj_mol, unit)) for r in done
                                if r.isomer == isomer and r.spin2s == s)
                 if curve:
-                    x, y = zip(*curve)
+                    x, y = zip(*curve, strict=False)
                     ax.plot(x, y, color=spin_colour(s), marker=spin_marker(s), ms=4, ls=_ISOMER_LINES.get(isomer, "-"),
                             mec="white", mew=0.4, gid=f"path:{isomer}:{s}")
         crossings = spin_crossings(c.path_records)

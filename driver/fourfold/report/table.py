@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 
 from .markup import formula_latex, formula_unicode
 
+
 @dataclass(frozen=True)
 class Column:
     key: str  # machine name (CSV, JSON), unit in the name
@@ -162,7 +163,7 @@ def to_latex(table: Table) -> str:
 def latex_document(tables: list[Table], title: str, inputs: list[str]) -> str:
     """A standalone document that \\input's each table file (booktabs and geometry only)."""
     body = []
-    for table, name in zip(tables, inputs):
+    for table, name in zip(tables, inputs, strict=False):
         body += [r"\begin{table}[htbp]\centering\small", rf"\caption{{{table.heading('tex')}}}",
                  rf"\input{{{name}}}", r"\end{table}", ""]
     return "\n".join([r"\documentclass{article}", r"\usepackage[T1]{fontenc}", r"\usepackage{booktabs}",
@@ -178,7 +179,7 @@ def to_text(table: Table, skip_notes=(), title: bool = True) -> str:
 
     def line(values):
         return "  ".join(v.rjust(w) if c.kind == "number" else v.ljust(w)
-                         for v, w, c in zip(values, widths, columns)).rstrip()
+                         for v, w, c in zip(values, widths, columns, strict=False)).rstrip()
 
     lines = [table.heading("text"), ""] if title else []
     lines += [line([c.text for c in columns]), "  ".join("-" * w for w in widths)]

@@ -56,7 +56,7 @@ def estimate_text(result, cx=None, charge_assumed: bool = False) -> str:
         if key in seen:
             continue
         seen.add(key)
-        levels = "  ".join(f"{label} {value:,.0f}" for label, value in zip(s.level_labels, s.levels_cm))
+        levels = "  ".join(f"{label} {value:,.0f}" for label, value in zip(s.level_labels, s.levels_cm, strict=False))
         out.append(f"{_state_name(*key):14s} d levels (cm⁻¹, low → high): {levels}")
     out += ["", to_text(table, title=False).rstrip("\n")]
     deltas = result.delta_sp_t_cm()
@@ -80,7 +80,8 @@ def _parameters_text(params) -> str:
     lines.append(f"  metal: B {params.racah_b_cm.value:,.0f} cm⁻¹ — {params.racah_b_cm.source}")
     lines.append(f"  metal: C {params.racah_c_cm.value:,.0f} cm⁻¹ — {params.racah_c_cm.source}")
     lines.append(f"  metal: k {params.k.value} — {params.k.source}")
-    lines.append(f"  nephelauxetic β = 1 − h̄·k = {params.beta:.3f}; pairing D = β·(7/6)(5B/2 + C) = {params.pairing_d_cm:,.0f} cm⁻¹")
+    lines.append(f"  nephelauxetic β = 1 − h̄·k = {params.beta:.3f}; "
+                 f"pairing D = β·(7/6)(5B/2 + C) = {params.pairing_d_cm:,.0f} cm⁻¹")
     lines.append(f"  e_ds/e_σ {params.e_ds_ratio.value} — {params.e_ds_ratio.source}")
     lines.append(f"  e scale {params.e_scale.value} — {params.e_scale.source}")
     lines.append(f"  repulsion: ε {params.steric_scale_cm.value:,.0f} cm⁻¹, n {params.steric_exponent.value:g}, "
