@@ -14,6 +14,8 @@ from ..compute.xtb_engine import XTB_SPIN_WARNING
 from ..units import energy_unit
 from .markup import formula_unicode, multiplicity_word
 
+AGREEMENT_BAND_KJ_MOL = 10.0  # parity-plot band: typical DFT spin-state error scale (fourfold default)
+
 XTB_NOTE = "GFN2-xTB energies: spin-state gaps are a screen only, not a verdict"
 BS_MARK, CONTAMINATED_MARK = "BS", "*"
 _GAS_PHASE = re.compile(r"^(?P<formula>.+?) is a (?P<charge>\d+)− anion computed in the gas phase: (?P<rest>.+)$")
@@ -190,8 +192,6 @@ def _d_levels_caption(c, comparison, unit) -> str:
 
 
 def _parity_caption(comparison, unit) -> str:
-    from .figures import AGREEMENT_BAND_KJ_MOL
-
     band = unit.from_kj_mol(AGREEMENT_BAND_KJ_MOL)
     body = (f"Estimated against computed ΔE(SP-4 − T-4) / {unit.header} per complex; dashed line: parity; band: "
             f"±{band:.{unit.digits}f} {unit.header}; grey quadrants: estimate and calculation prefer the same "
@@ -203,7 +203,7 @@ def _parity_caption(comparison, unit) -> str:
 
 
 def _path_caption(c, comparison, unit) -> str:
-    from .figures import spin_crossings
+    from ..verdict.comparison import spin_crossings
 
     crossings = spin_crossings(c.path_records)
     body = (f"Energy / {unit.header} (on the zero of the states table) against the trans L–M–L angle along the D₂d "

@@ -31,14 +31,15 @@ from ..chem.notation import formula_slug
 from ..errors import InputError
 from ..geometry.polyhedra import arrangement_rank
 from ..units import energy_unit
+from ..verdict.comparison import spin_crossings
 from . import captions
+from .captions import AGREEMENT_BAND_KJ_MOL
 from .markup import formula_unicode, multiplicity_word, orbital_mathtext
 
 SINGLE_COLUMN_IN = 85 / 25.4
 DOUBLE_COLUMN_IN = 178 / 25.4
 PNG_DPI = 300
 FIGURE_FORMATS = ("pdf", "svg", "png")
-AGREEMENT_BAND_KJ_MOL = 10.0  # parity-plot band: typical DFT spin-state error scale (fourfold default)
 
 OKABE_ITO = {"black": "#000000", "orange": "#E69F00", "sky blue": "#56B4E9", "bluish green": "#009E73",
              "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "reddish purple": "#CC79A7"}
@@ -743,38 +744,6 @@ def parity_figure(comparison, unit: str = "kj", columns: int = 1, band_kj_mol: f
 
 
 # ---- distortion path ------------------------------------------------------------------------------------
-
-@dataclass(frozen=True)
-class Crossing:
-    isomer: str
-    spins: tuple[int, int]
-    trans_angle_deg: float
-    relative_kj_mol: float
-
-
-def spin_crossings(path_records) -> list[Crossing]:
-    """Where two spin states' path energies change order, by linear interpolation between adjacent points."""
-    done = [r for r in path_records if r.status == "done" and r.relative_kj_mol is not None]
-    found = []
-    for isomer in sorted({r.isomer for r in done}):
-        curves = {}
-        for r in done:
-            if r.isomer == isomer:
-                curves.setdefault(r.spin2s, {})[round(r.trans_angle_deg, 6)] = r.relative_kj_mol
-        spins = sorted(curves)
-        for i, a in enumerate(spins):
-            for b in spins[i + 1:]:
-                angles = sorted(set(curves[a]) & set(curves[b]))
-                for left, right in zip(angles, angles[1:], strict=False):
-                    d0 = curves[a][left] - curves[b][left]
-                    d1 = curves[a][right] - curves[b][right]
-                    if d0 * d1 < 0:
-                        t = d0 / (d0 - d1)
-                        angle = left + t * (right - left)
-                        energy = curves[a][left] + t * (curves[a][right] - curves[a][left])
-                        found.append(Crossing(isomer, (a, b), angle, energy))
-    return found
-
 
 def path_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str = "annotated"):
     """Energy against the trans L–M–L angle for each spin (and SP-4 isomer); None without path points."""

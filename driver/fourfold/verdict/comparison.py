@@ -452,3 +452,35 @@ def _relative_path_energies(path_records: list[StateRecord], lowest_hartree: flo
 def comparison_from_store(study, store) -> Comparison:
     """The comparison of a study from a ResultStore (fourfold.study.store) holding its results."""
     return build_comparison(study, {r["job_key"]: r for r in store.results()})
+
+
+@dataclass(frozen=True)
+class Crossing:
+    isomer: str
+    spins: tuple[int, int]
+    trans_angle_deg: float
+    relative_kj_mol: float
+
+
+def spin_crossings(path_records) -> list[Crossing]:
+    """Where two spin states' path energies change order, by linear interpolation between adjacent points."""
+    done = [r for r in path_records if r.status == "done" and r.relative_kj_mol is not None]
+    found = []
+    for isomer in sorted({r.isomer for r in done}):
+        curves = {}
+        for r in done:
+            if r.isomer == isomer:
+                curves.setdefault(r.spin2s, {})[round(r.trans_angle_deg, 6)] = r.relative_kj_mol
+        spins = sorted(curves)
+        for i, a in enumerate(spins):
+            for b in spins[i + 1:]:
+                angles = sorted(set(curves[a]) & set(curves[b]))
+                for left, right in zip(angles, angles[1:], strict=False):
+                    d0 = curves[a][left] - curves[b][left]
+                    d1 = curves[a][right] - curves[b][right]
+                    if d0 * d1 < 0:
+                        t = d0 / (d0 - d1)
+                        angle = left + t * (right - left)
+                        energy = curves[a][left] + t * (curves[a][right] - curves[a][left])
+                        found.append(Crossing(isomer, (a, b), angle, energy))
+    return found
