@@ -52,15 +52,16 @@ def test_every_solvent_reaches_xtb():
 # pinned, so only the job description enters): a JobSpec must give the same keys, or existing stores would
 # recompute everything. The frequency step is switched off here because it is new in 0.2.0: it moved the keys
 # of free chains' single points (their parent is now the frequency job), as the CHANGELOG says; so did the new
-# PMe3 fragment and the custom-ligand fields, which is why these recipes hold neither.
+# PMe3 fragment, the custom-ligand fields and the continuum `quick` now gives ions, which is why these recipes
+# hold none of them (the `quick` one is neutral).
 KEY_RECIPES = {
     "quick": 'frequencies = false\ntitle = "key stability"\nlevel = "quick"\npath_points = 3\n[[complex]]\n'
-             'formula = "[NiCl4]2-"\n',
+             'formula = "[NiCl2(NH3)2]"\n',
     "standard": ('frequencies = false\ntitle = "key stability standard"\nlevel = "standard"\n'
                  'relaxations = ["held", "free"]\n[[complex]]\nformula = "[PdCl4]2-"\nspins = [0]\n'),
 }
 KEYS_BEFORE_JOBSPEC = {
-    "quick": (28, "2c11d36383b937f7e939ce9c68a6638861438ee5a8150125bf3a4c024e5ce1c5"),
+    "quick": (48, "133cbba5234a31731ef581ff0cbb75a46e55e5241c8186b9a96eddc745f4a04e"),
     "standard": (10, "8232316012e43b453fd68c00304b19fab0103f8750979087bcc42c7a90c7dce0"),
 }
 

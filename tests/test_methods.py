@@ -159,7 +159,9 @@ def test_the_quick_text_names_functional_basis_ecp_fitting_dispersion_phase_grid
     assert "def2 effective core potentials [@andrae1990-ecp] on Pd (every atom with Z ≥ 37)" in md
     assert "density-fitted with the def2-universal-jkfit auxiliary basis [@weigend2008-jkfit]" in md
     assert "D3 dispersion correction [@grimme2010-d3] with Becke–Johnson damping [@grimme2011-bj]" in md
-    assert "No solvent model was used (gas phase)" in md
+    # the quick study holds dianions: they get a continuum (positive gas-phase HOMOs, benchmarks/ion_solvent.py)
+    assert "Neutral complexes were computed in the gas phase. The charged ones" in md
+    assert "C-PCM model [@barone1998-cpcm] for acetonitrile" in md
     assert "integration grid level 1" in md  # the quick preset's grid_level (compute/levels.py)
     assert "energy change below 10⁻⁶ Eₕ" in md  # the quick preset's conv_tol
     assert "Structures were relaxed with GFN2-xTB" in md and "Energies are single points on these structures" in md

@@ -522,9 +522,22 @@ def _fitting_sentence(level, basis: str) -> list:
     return parts + ["(PySCF's default for this basis and method). "]
 
 
-def _solvent_sentence(level) -> list:
+def _solvent_sentence(study, level) -> list:
+    from ..compute.levels import level_for_charge
+
+    charged = [e.complex.formula for e in study.complexes if e.complex.charge]
+    if level.solvent is None and level.ion_solvent and charged:
+        ions = level_for_charge(level, 1)
+        return ["Neutral complexes were computed in the gas phase. The charged ones (", ", ".join(charged),
+                "), whose highest occupied orbitals lie above zero in the gas phase at this level, were computed "
+                "in a continuum in the GFN2-xTB stage (ALPB ", _cite("ehlert2021-alpb"), ") and in the DFT step. ",
+                *_pcm_sentence(ions)]
     if level.solvent is None:
         return ["No solvent model was used (gas phase). "]
+    return _pcm_sentence(level)
+
+
+def _pcm_sentence(level) -> list:
     from pyscf import gto
     from pyscf.dft.gen_grid import LEBEDEV_ORDER
     from pyscf.solvent.pcm import PCM
@@ -628,7 +641,7 @@ def _energy_paragraph(study, level, comparison, state_search, w: _Writer) -> lis
         role, has_single_point = "Energies are single points on these structures with", True
     else:
         role, has_single_point = "Structures were then relaxed with", level.single_point_basis is not None
-    parts = [*_functional_sentence(level, role, w), *_basis_sentence(study, level), *_solvent_sentence(level),
+    parts = [*_functional_sentence(level, role, w), *_basis_sentence(study, level), *_solvent_sentence(study, level),
              *_grid_sentence(study, level)]
     if level.geometry_from != "xtb" and has_single_point:
         basis = level.single_point_basis

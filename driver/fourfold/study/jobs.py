@@ -27,6 +27,7 @@ from importlib import metadata
 import numpy as np
 
 from ..chem.complex import Complex
+from ..compute.levels import level_for_charge
 from ..geometry.builder import build, build_path_point
 from ..geometry.isomers import isomers_of
 from ..geometry.polyhedra import TETRAHEDRAL_ANGLE_DEG
@@ -160,8 +161,11 @@ def geometry_engine(level) -> dict:
 
 
 def _dft_engine(level, basis: str) -> dict:
-    # Only what changes the numbers goes into the key: the preset's name and the chaining fields do not.
-    return replace(level, name=level.method, basis=basis, geometry_from="self", single_point_basis=None).to_dict()
+    # Only what changes the numbers goes into the key: the preset's name and the chaining fields do not, nor
+    # ion_solvent, which level_for_charge has already turned into the complex's solvent.
+    engine = replace(level, name=level.method, basis=basis, geometry_from="self", single_point_basis=None).to_dict()
+    engine.pop("ion_solvent")
+    return engine
 
 
 def relax_engine(level) -> dict:
@@ -207,6 +211,7 @@ def expand(study) -> list[Job]:
     max_steps = study.run.get("max_steps", 100)
     for entry in study.complexes:
         cx = entry.complex
+        level = level_for_charge(study.level, cx.charge)
         common = {"formula": cx.formula, "complex": complex_spec(cx), "charge": cx.charge, "max_steps": max_steps,
                   "engine": {}}
         for arrangement in entry.arrangements:
@@ -216,7 +221,7 @@ def expand(study) -> list[Job]:
                     for kind in study.relaxations:
                         base = JobSpec(**common, arrangement=arrangement, isomer=isomer.label, spin2s=spin2s, kind=kind)
                         label = f"{cx.formula} {arrangement} {isomer.label} 2S={spin2s} {kind}".replace("  ", " ")
-                        _state_chain(builder, study.level, base, atoms, label, study.frequencies)
+                        _state_chain(builder, level, base, atoms, label, study.frequencies)
         if study.path_points and "SP-4" in entry.arrangements:
             for isomer in isomers_of(cx, "SP-4"):
                 for angle in path_angles_deg(study.path_points):
@@ -225,5 +230,5 @@ def expand(study) -> list[Job]:
                         base = JobSpec(**common, arrangement="path", isomer=isomer.label, spin2s=spin2s, kind="held",
                                        trans_angle_deg=round(angle, 6))
                         label = f"{cx.formula} path {angle:.1f}° {isomer.label} 2S={spin2s}".replace("  ", " ")
-                        _state_chain(builder, study.level, base, atoms, label, study.frequencies)
+                        _state_chain(builder, level, base, atoms, label, study.frequencies)
     return list(builder.jobs.values())

@@ -272,7 +272,9 @@ def parse_recipe(text: str, path: str = "<recipe>") -> Study:
         try:
             from dataclasses import replace
 
-            level = replace(level, solvent=None if solvent.strip().lower() in ("gas", "none") else solvent)
+            gas = solvent.strip().lower() in ("gas", "none")
+            # "gas" means gas phase for every complex: ions too, whatever continuum the level gives them
+            level = replace(level, solvent=None, ion_solvent=None) if gas else replace(level, solvent=solvent)
         except InputError as error:
             raise _fail(path, "solvent", str(error)) from None
     global_overrides = _overrides(path, "estimate", data.get("estimate", {}))

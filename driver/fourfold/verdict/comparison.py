@@ -17,6 +17,7 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
 
+from ..compute.levels import level_for_charge
 from ..units import convert_energy, energy_unit
 
 SPIN_CONTAMINATION_LIMIT = 0.1  # |⟨S²⟩ − S(S+1)| above this is flagged (fourfold default)
@@ -327,7 +328,7 @@ def build_comparison(study, results_by_key: dict) -> Comparison:
                 r.unprojected_relative_kj_mol = convert_energy(r.energy_hartree - lowest, "hartree", "kj")
         _thermochemistry(records, study.temperature_k, study.pressure_bar)
         _relative_path_energies(path_records, lowest, study.level)
-        warnings += _charge_warnings(cx, records, study.level)
+        warnings += _charge_warnings(cx, records, level_for_charge(study.level, cx.charge))
         complexes.append(ComplexComparison(cx.formula, cx.d_electrons, records, est, study.level.name, path_records,
                                            study.temperature_k))
     caveats = energy_caveats(study.level, any(r.gibbs_hartree is not None for c in complexes for r in c.records))
