@@ -61,3 +61,20 @@ def test_frequencies_follow_free_relaxations_only_and_can_be_switched_off():
     assert {j.parent for j in single_points} == {j.key for j in frequency_jobs}
     off = expand(parse_recipe("frequencies = false\n" + text, "f"))
     assert not [j for j in off if j.task == "frequencies"]
+
+
+def test_the_spin_ladder_can_show_free_energies(nickel):
+    from fourfold.pipeline import open_store
+    from fourfold.report.figures import ladder_figure
+    from fourfold.study.recipe import load_folder_study
+    from fourfold.verdict.comparison import comparison_from_store
+
+    folder, _ = nickel
+    c = comparison_from_store(load_folder_study(folder), open_store(folder)).complexes[0]
+    g_figure = ladder_figure(c, energy="G")
+    assert g_figure.axes[0].get_ylabel().startswith("relative free energy G")
+    plotted = {line.get_gid(): line.get_ydata()[0] for line in g_figure.axes[0].lines
+               if (line.get_gid() or "").startswith("calc:")}
+    expected = {"calc:SP-4:0": next(r.relative_gibbs_kj_mol for r in c.records
+                                     if r.kind == "free" and (r.arrangement, r.spin2s) == ("SP-4", 0))}
+    assert plotted["calc:SP-4:0"] == expected["calc:SP-4:0"]

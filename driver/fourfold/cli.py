@@ -78,7 +78,8 @@ def _print_cautions(complexes) -> None:
 @click.option("--json", "as_json", is_flag=True, help="Print the estimate as JSON.")
 def estimate(formula, arrangements, overrides, spins, as_json):
     """Ligand-field estimate for FORMULA such as '[NiCl4]2-' (quote it in the shell)."""
-    from .field.estimate import DEFAULT_ARRANGEMENTS, estimate as run_estimate, parse_overrides
+    from .field.estimate import DEFAULT_ARRANGEMENTS, parse_overrides
+    from .field.estimate import estimate as run_estimate
     from .report.text import estimate_text
 
     cx = _load_complex(formula)
@@ -278,8 +279,10 @@ _STORE_OPTION = click.option("--store", "store_url", metavar="postgresql://USER@
               help="Temperature of the free energies in K (default: the one the study ran with).")
 @click.option("--figures", "figure_style", type=click.Choice(("annotated", "journal")), default="annotated",
               show_default=True, help="Figure style: journal figures carry no title or caveats (see captions.md).")
+@click.option("--ladder", "ladder_energy", type=click.Choice(("E", "G")), default="E", show_default=True,
+              help="What the spin-ladder figures show: electronic energies E, or free energies G(T) of the free minima.")
 @_STORE_OPTION
-def report(folder, unit, formats, temperature_k, figure_style, store_url):
+def report(folder, unit, formats, temperature_k, figure_style, ladder_energy, store_url):
     """Tables, figures and extended XYZ structures of a study FOLDER, from its store; prints the summary.
 
     Writes FOLDER/tables, FOLDER/figures (PDF, SVG, 300 dpi PNG) and FOLDER/structures."""
@@ -288,7 +291,7 @@ def report(folder, unit, formats, temperature_k, figure_style, store_url):
     from .study.recipe import load_folder_study
 
     written = report_folder(folder, store_url, unit=unit.lower(), formats=formats or ("csv", "md", "tex", "json"),
-                            temperature_k=temperature_k, figure_style=figure_style)
+                            temperature_k=temperature_k, figure_style=figure_style, ladder_energy=ladder_energy)
     _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     click.echo(report_text(written), nl=False)
 

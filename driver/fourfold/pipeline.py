@@ -48,6 +48,7 @@ class RunOptions:
     unit: str = "kj"
     formats: tuple[str, ...] = FORMATS
     figure_style: str = "annotated"  # or "journal": no titles or caveats in the figures (they go to captions.md)
+    ladder_energy: str = "E"  # the spin ladders show E, or G (free minima's free energies)
     pool_factory: Callable | None = None
     progress: Callable | None = None
     on_start: Callable | None = None
@@ -91,12 +92,13 @@ def run_pipeline(study, options: RunOptions) -> Outcome:
                             store_url=options.store_url, pool_factory=options.pool_factory,
                             on_start=options.on_start)
         report = write_report(out_dir, study, open_store(out_dir, options.store_url), options.unit, options.formats,
-                              options.figure_style)
+                              options.figure_style, options.ladder_energy)
     return Outcome(summary, report)
 
 
 def report_folder(folder, store_url: str | None = None, unit: str = "kj", formats=FORMATS,
-                  temperature_k: float | None = None, figure_style: str = "annotated") -> Report:
+                  temperature_k: float | None = None, figure_style: str = "annotated",
+                  ladder_energy: str = "E") -> Report:
     """Write the report of a study folder again (another unit, store or temperature) without running anything."""
     from dataclasses import replace
 
@@ -105,7 +107,7 @@ def report_folder(folder, store_url: str | None = None, unit: str = "kj", format
         study = replace(study, temperature_k=float(temperature_k))
     store = open_store(folder, store_url)
     with RunLock(Path(folder)):
-        return write_report(folder, study, store, unit, formats, figure_style)
+        return write_report(folder, study, store, unit, formats, figure_style, ladder_energy)
 
 
 def folder_status(folder, store_url: str | None = None) -> dict:

@@ -165,16 +165,28 @@ def _group_tick(group, two_lines: bool) -> str:
 
 # ---- spin-state ladder ---------------------------------------------------------------------------------
 
-def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str = "annotated"):
+LADDER_ENERGIES = ("E", "G")
+
+
+def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str = "annotated", energy: str = "E"):
     """Levels of every arrangement × isomer × 2S of one complex: computed (left) beside estimated (right); the
-    computed energies are the verdict's (Yamaguchi-projected for a broken-symmetry singlet where possible)."""
+    computed energies are the verdict's (Yamaguchi-projected for a broken-symmetry singlet where possible):
+    electronic energies of the arrangement ladder (``energy`` "E"), or free energies G(T) of the free minima by
+    their starting arrangement ("G")."""
     from matplotlib.lines import Line2D
 
     check_style(style)
+    if energy not in LADDER_ENERGIES:
+        raise InputError(f"the spin ladder shows E or G, not {energy!r}")
+    axis_label = "relative free energy G" if energy == "G" else "relative energy"  # `energy` is reused below
     unit = energy_unit(unit).name
     groups = _groups(c)
-    shown = c.held_or_free()
-    computed = {(r.arrangement, r.isomer, r.spin2s): _in_unit(r.relative_kj_mol, unit) for r in shown}
+    if energy == "G":
+        shown = [r for r in c.records if r.kind == "free" and r.relative_gibbs_kj_mol is not None]
+        computed = {(r.arrangement, r.isomer, r.spin2s): _in_unit(r.relative_gibbs_kj_mol, unit) for r in shown}
+    else:
+        shown = c.held_or_free()
+        computed = {(r.arrangement, r.isomer, r.spin2s): _in_unit(r.relative_kj_mol, unit) for r in shown}
     marks = {(r.arrangement, r.isomer, r.spin2s): f" {captions.BS_MARK}" if r.broken_symmetry
              else (captions.CONTAMINATED_MARK if r.spin_contaminated else "") for r in shown}
     estimated = {(s.arrangement, s.isomer, s.spin2s): _in_unit(s.energy_kj_mol, unit) for s in c.estimate.states}
@@ -218,7 +230,7 @@ def ladder_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str
         ax.tick_params(axis="x", which="major", pad=11)
         ax.tick_params(axis="x", which="minor", pad=2)
         ax.set_xlim(-0.5, len(groups) - 0.5)
-        ax.set_ylabel(f"relative energy / {unit_math(unit)}")
+        ax.set_ylabel(f"{axis_label} / {unit_math(unit)}")
         ax.spines["bottom"].set_visible(False)
         ax.axhline(0.0, color=_GREY, lw=0.4, zorder=0)
         handles = [Line2D([], [], color=spin_colour(s), lw=2.0, label=f"{s + 1}  {multiplicity_word(s)}")
@@ -796,12 +808,14 @@ def path_figure(c, unit: str = "kj", columns: int = 1, warnings=(), style: str =
 
 # ---- files ----------------------------------------------------------------------------------------------
 
-def study_figures(comparison, unit: str = "kj", style: str = "annotated") -> dict:
-    """name -> Figure for every figure the comparison supports, in ``style`` (annotated or journal)."""
+def study_figures(comparison, unit: str = "kj", style: str = "annotated", ladder_energy: str = "E") -> dict:
+    """name -> Figure for every figure the comparison supports, in ``style`` (annotated or journal); the spin
+    ladders show ``ladder_energy`` (E, or G where the study has free energies)."""
     check_style(style)
     figures = {}
     for c in comparison.complexes:
-        figures[f"ladder_{formula_slug(c.formula)}"] = ladder_figure(c, unit, warnings=comparison.warnings, style=style)
+        figures[f"ladder_{formula_slug(c.formula)}"] = ladder_figure(c, unit, warnings=comparison.warnings, style=style,
+                                                                     energy=ladder_energy)
         figures[f"d_levels_{formula_slug(c.formula)}"] = d_levels_figure(c, style=style)
         path = path_figure(c, unit, warnings=comparison.warnings, style=style)
         if path is not None:

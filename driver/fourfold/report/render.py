@@ -62,11 +62,12 @@ def write_tables(comparison, folder: Path, unit: str, formats=tab.FORMATS, safet
     return written
 
 
-def write_figures(comparison, folder: Path, unit: str, figure_style: str = "annotated") -> list[Path]:
+def write_figures(comparison, folder: Path, unit: str, figure_style: str = "annotated",
+                  ladder_energy: str = "E") -> list[Path]:
     from .figures import save_figure, study_figures
 
     written = []
-    for name, fig in study_figures(comparison, unit, figure_style).items():
+    for name, fig in study_figures(comparison, unit, figure_style, ladder_energy).items():
         written += save_figure(fig, folder / name)
     return written
 
@@ -103,7 +104,7 @@ def write_structures(comparison, results_by_key: dict, folder: Path, unit: str) 
 
 
 def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS,
-                 figure_style: str = "annotated") -> Report:
+                 figure_style: str = "annotated", ladder_energy: str = "E") -> Report:
     """Write tables, figures and structures of ``study`` into ``folder`` from the results in ``store`` (a
     fourfold.study.store.ResultStore: the folder's results.db or a PostgreSQL store); figures in
     ``figure_style`` (annotated or journal), their captions and the tables' in tables/captions.md."""
@@ -130,7 +131,7 @@ def write_report(folder, study, store, unit: str = "kj", formats=tab.FORMATS,
 
     methods = methods_files(study, study_versions(folder), comparison, safety, formats)
     report.tables += [_write_text(folder / "tables" / name, text) for name, text in methods.items()]
-    report.figures = write_figures(comparison, folder / "figures", unit, figure_style)
+    report.figures = write_figures(comparison, folder / "figures", unit, figure_style, ladder_energy)
     if "md" in formats:
         names = list(dict.fromkeys(p.stem for p in report.figures))
         captions = captions_markdown(comparison, names, tab.study_tables(comparison, unit), unit)

@@ -242,8 +242,8 @@ def jobqueue_cluster(kind: str, settings: dict, threads: int, scheduler_options:
         if kind == "slurm":
             return dask_jobqueue.SLURMCluster(**options, job_cpu=cores)
         if kind == "pbs":
-            from dask_jobqueue.pbs import pbs_format_bytes_ceil
             from dask.utils import parse_bytes
+            from dask_jobqueue.pbs import pbs_format_bytes_ceil
 
             memory = pbs_format_bytes_ceil(parse_bytes(settings["memory"]))
             return dask_jobqueue.PBSCluster(**options, resource_spec=f"select=1:ncpus={cores}:mem={memory}")
