@@ -5,7 +5,7 @@ Inputs are an ``ase.Atoms`` (positions in Å), the total charge and 2S (PySCF's 
 
 Decisions (DESIGN.md "Chemistry decisions"):
 - Closed-shell singlets run restricted; open shells unrestricted. A singlet is then checked for an
-  RKS → UKS instability (PySCF's external stability analysis); when a lower UKS solution exists it is
+  RKS → UKS instability (compute.stability); when a lower UKS solution exists it is
   converged and reported as a broken-symmetry singlet with its ⟨S²⟩, never as a closed shell.
 - The SCF ladder (``RUNGS``) runs until one rung converges: DIIS from the minao guess (or the given
   guess), level shift + damping, second order (newton), Fermi smearing to get a guess followed by an
@@ -19,8 +19,6 @@ Decisions (DESIGN.md "Chemistry decisions"):
 from __future__ import annotations
 
 import contextlib
-import ctypes
-import glob
 import os
 import time
 from dataclasses import dataclass, field
@@ -31,6 +29,8 @@ import numpy as np
 
 from ..errors import ComputeError, InputError, NotConverged
 from .levels import Level, solvent_epsilon
+from .stability import rks_to_uks_instability
+from .threads import pyscf_threads
 
 RUNGS = ("diis", "shift_damp", "newton", "smearing")
 S2_TOLERANCE = 0.1            # |<S²> − S(S+1)| above this flags spin contamination (DESIGN.md)
@@ -137,38 +137,7 @@ def build_mole(atoms, charge: int, spin2s: int, basis: str, ecp: str | None = "a
     return mol
 
 
-# ------------------------------------------------------------------------------------------- threads
-
-def _numpy_openblas():
-    """numpy's bundled OpenBLAS (its threads are not PySCF's OpenMP threads), or None."""
-    import numpy
-
-    pattern = os.path.join(os.path.dirname(os.path.dirname(numpy.__file__)), "numpy.libs", "*openblas*.so*")
-    for path in glob.glob(pattern):
-        lib = ctypes.CDLL(path)
-        for getter, setter in (("scipy_openblas_get_num_threads64_", "scipy_openblas_set_num_threads64_"),
-                               ("openblas_get_num_threads", "openblas_set_num_threads")):
-            if hasattr(lib, getter) and hasattr(lib, setter):
-                return getattr(lib, getter), getattr(lib, setter)
-    return None
-
-
-@contextlib.contextmanager
-def _threads(threads: int):
-    """PySCF's OpenMP threads and numpy's BLAS threads set to ``threads`` for the calculation."""
-    from pyscf import lib
-
-    blas = _numpy_openblas()
-    old_blas = blas[0]() if blas else None
-    with lib.with_omp_threads(int(threads)):
-        if blas:
-            blas[1](int(threads))
-        try:
-            yield
-        finally:
-            if blas:
-                blas[1](old_blas)
-
+# ------------------------------------------------------------------------------------------- output
 
 @contextlib.contextmanager
 def _log_stream(log_path):
@@ -386,48 +355,6 @@ def _finish_on_grid(run: _Run, grid_level: int) -> _Run:
 
 # ------------------------------------------------------------------------------ singlet stability
 
-STABILITY_TOLERANCE = 1e-4       # Davidson convergence, as PySCF's stability default
-UNSTABLE_EIGENVALUE = -1e-5      # a lower orbital-Hessian eigenvalue means an instability (PySCF's test)
-STABILITY_START_VECTORS = 4      # Davidson start vectors: unit rotations at the smallest diagonal elements
-
-
-def _unstable_uks_guess(rks_mf):
-    """UKS density along the lowest RKS → UKS (triplet) instability found, or None when none is found.
-
-    The RHF → UHF part of PySCF's external stability analysis, one root: ``mf.stability(external=True)``
-    also runs a real → complex analysis and three roots, which measured 42 s CPU against 11 s for the
-    SCF itself on SP-4 [NiCl4]2- (B3LYP/def2-SVP); that part cannot produce a UKS solution.
-    """
-    from pyscf import lib
-    from pyscf.scf import stability
-
-    _, _, hessian_times, diagonal = stability._gen_hop_rhf_external(rks_mf)
-
-    def precondition(dx, e, x0):
-        shifted = diagonal - e
-        shifted[abs(shifted) < 1e-8] = 1e-8
-        return dx / shifted
-
-    # Start from the rotations with the smallest diagonal (the orbital pairs across the smallest gaps),
-    # not PySCF's single vector 1/diagonal: measured with B3LYP/def2-SVP on xTB-held SP-4 structures,
-    # NiCl2(PMe3)2 trans 6 Hessian products instead of 28 (15 s against 68 s on one core), [Ni(CN)4]2-
-    # 7 instead of 17, and the instabilities of [NiCl4]2- and [NiBr4]2- found in 4–6; the verdict
-    # (stable or not) was the same in every case.
-    starts = []
-    for index in np.argsort(diagonal)[:STABILITY_START_VECTORS]:
-        unit = np.zeros_like(diagonal)
-        unit[index] = 1.0
-        starts.append(unit)
-    eigenvalue, vector = lib.davidson(hessian_times, starts, precondition, tol=STABILITY_TOLERANCE, nroots=1,
-                                      verbose=rks_mf.verbose)
-    lib.logger.info(rks_mf, "RKS -> UKS stability: lowest orbital-Hessian eigenvalue %.6g", eigenvalue)
-    if eigenvalue >= UNSTABLE_EIGENVALUE:
-        return None
-    mo_a, mo_b = stability._rotate_mo(rks_mf.mo_coeff, rks_mf.mo_occ, vector), rks_mf.mo_coeff
-    occ = rks_mf.mo_occ * 0.5
-    return np.array([(mo_a * occ) @ mo_a.T, (mo_b * occ) @ mo_b.T])
-
-
 def _mixed_homo_lumo_guess(mf) -> np.ndarray:
     """Broken-symmetry guess from restricted orbitals: α gets (HOMO+LUMO)/√2, β (HOMO−LUMO)/√2.
 
@@ -535,7 +462,7 @@ def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: l
     if not search:
         return run, restricted, 0
     if run.converged:
-        uks_dm = _unstable_uks_guess(run.mf)
+        _, uks_dm = rks_to_uks_instability(run.mf)
         if uks_dm is None:
             notes.append("RKS solution stable towards UKS")
             return run, True, 0
@@ -586,7 +513,7 @@ def run_scf(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=
     Never raises for non-convergence: the result has ``converged=False`` and a ``reason``.
     """
     started = time.perf_counter()
-    with _log_stream(log_path) as stream, _threads(threads):
+    with _log_stream(log_path) as stream, pyscf_threads(threads):
         run, mol, restricted, dispersion, notes, extra = _calculate(
             atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form)
         return _result(run, mol, spin2s, restricted, dispersion, started, log_path, notes, extra)
@@ -602,7 +529,7 @@ def energy_gradient(atoms, charge: int, spin2s: int, level: Level, guess=None, l
     unconverged SCF would mislead the optimiser.
     """
     started = time.perf_counter()
-    with _log_stream(log_path) as stream, _threads(threads):
+    with _log_stream(log_path) as stream, pyscf_threads(threads):
         run, mol, restricted, dispersion, notes, extra = _calculate(
             atoms, charge, spin2s, level, guess, stream, None, None, form)
         result = _result(run, mol, spin2s, restricted, dispersion, started, log_path, notes, extra)

@@ -27,16 +27,13 @@ dielectric constant for the non-empirical ALPB form (GBε with the P16 Born kern
 
 from __future__ import annotations
 
-import ctypes
-import ctypes.util
 from collections.abc import Sequence
-from contextlib import contextmanager
-from functools import cache
 
 import numpy as np
 
 from ..errors import ComputeError, InputError, NotConverged
 from ..units import angstrom_to_bohr
+from .threads import thread_limits
 
 XTB_SPIN_WARNING = (
     "GFN2-xTB (screen level) spin-state energies are a screen only: xTB spin gaps are not reliable "
@@ -47,32 +44,6 @@ XTB_SPIN_WARNING = (
 # Default tblite SCC settings (tblite's own defaults, named here so callers can tighten them).
 DEFAULT_ACCURACY = 1.0
 DEFAULT_MAX_ITERATIONS = 250
-
-
-@cache
-def _gomp():
-    """The GNU OpenMP runtime tblite is linked against (None if this platform has no libgomp)."""
-    name = ctypes.util.find_library("gomp")
-    return ctypes.CDLL(name) if name else None
-
-
-@contextmanager
-def _omp_threads(threads: int):
-    """Run tblite with ``threads`` OpenMP threads, restoring the previous count afterwards.
-
-    Measured here: a 9-atom SCC took 3–7 ms on one thread and 80–110 ms (up to 2 s) on two threads
-    of a busy 2-core machine, so the count is set per calculation, as for every job (DESIGN.md).
-    """
-    gomp = _gomp()
-    if gomp is None:
-        yield
-        return
-    previous = gomp.omp_get_max_threads()
-    gomp.omp_set_num_threads(threads)
-    try:
-        yield
-    finally:
-        gomp.omp_set_num_threads(previous)
 
 
 def _atomic_numbers(symbols_or_numbers: Sequence) -> np.ndarray:
@@ -157,7 +128,9 @@ class XtbPotential:
         else:
             self._calc.update(positions=positions_bohr)
         try:
-            with _omp_threads(self.threads):
+            # Set per call: a 9-atom SCC measured 3–7 ms on one thread and 80–110 ms (up to 2 s) on two
+            # threads of a busy 2-core machine.
+            with thread_limits(self.threads):
                 self._result = self._calc.singlepoint(self._result)
         except TBLiteRuntimeError as err:
             # A failed SCC leaves a wavefunction that should not seed the next call.
