@@ -188,10 +188,11 @@ def test_triplet_hessian_of_minimal_basis_h2_is_the_closed_form():
     from pyscf import ao2mo
 
     from fourfold.compute import stability
+    from fourfold.compute.scf_ladder import mean_field
 
     for distance, unstable in ((0.74, False), (3.0, True)):
         mol = engine.build_mole(h2(distance), 0, 0, "sto-3g", ecp=None)
-        mf = engine._mean_field(mol, HF_STO3G, restricted=True, grid_level=0)
+        mf = mean_field(mol, HF_STO3G, restricted=True, grid_level=0)
         mf.kernel()
         eri = ao2mo.kernel(mol, mf.mo_coeff, compact=False).reshape(2, 2, 2, 2)
         closed_form = mf.mo_energy[1] - mf.mo_energy[0] - eri[0, 0, 1, 1] - eri[0, 1, 1, 0]

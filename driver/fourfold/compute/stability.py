@@ -33,8 +33,9 @@ def rotate_orbitals(mo_coeff: np.ndarray, mo_occ: np.ndarray, vector: np.ndarray
     return mo_coeff @ scipy.linalg.expm(generator)
 
 
-def _lowest_root(hessian_times, diagonal: np.ndarray, verbose) -> tuple[float, np.ndarray]:
-    """Lowest eigenpair of the Hessian by Davidson, started from the rotations with the smallest diagonal.
+def _lowest_root(hessian_times, diagonal: np.ndarray, verbose) -> tuple[float | None, np.ndarray | None]:
+    """Lowest eigenpair of the Hessian by Davidson, started from the rotations with the smallest diagonal;
+    (None, None) when there is no occupied–virtual rotation at all (e.g. one electron in one orbital).
 
     Not PySCF's single start vector 1/diagonal: measured with B3LYP/def2-SVP on xTB-held SP-4 structures,
     NiCl2(PMe3)2 trans needed 6 Hessian products instead of 28 (15 s against 68 s on one core), [Ni(CN)4]2-
@@ -42,6 +43,9 @@ def _lowest_root(hessian_times, diagonal: np.ndarray, verbose) -> tuple[float, n
     (stable or not) was the same in every case.
     """
     from pyscf import lib
+
+    if diagonal.size == 0:
+        return None, None
 
     def precondition(dx, e, x0):
         shifted = diagonal - e
@@ -81,7 +85,7 @@ def _triplet_hessian(rks_mf):
     return hessian_times, gaps.ravel()
 
 
-def rks_to_uks_instability(rks_mf) -> tuple[float, np.ndarray | None]:
+def rks_to_uks_instability(rks_mf) -> tuple[float | None, np.ndarray | None]:
     """Lowest RKS → UKS eigenvalue and, when it is an instability, the UKS density (2, nao, nao) along it.
 
     α orbitals are rotated along the eigenvector, β kept: the spin symmetry is broken in the direction
@@ -91,9 +95,53 @@ def rks_to_uks_instability(rks_mf) -> tuple[float, np.ndarray | None]:
 
     hessian_times, diagonal = _triplet_hessian(rks_mf)
     eigenvalue, vector = _lowest_root(hessian_times, diagonal, rks_mf.verbose)
-    lib.logger.info(rks_mf, "RKS -> UKS stability: lowest orbital-Hessian eigenvalue %.6g", eigenvalue)
-    if eigenvalue >= UNSTABLE_EIGENVALUE:
+    lib.logger.info(rks_mf, "RKS -> UKS stability: lowest orbital-Hessian eigenvalue %s", eigenvalue)
+    if eigenvalue is None or eigenvalue >= UNSTABLE_EIGENVALUE:
         return eigenvalue, None
     mo_a, mo_b = rotate_orbitals(rks_mf.mo_coeff, rks_mf.mo_occ, vector), rks_mf.mo_coeff
     occ = rks_mf.mo_occ * 0.5
     return eigenvalue, np.array([(mo_a * occ) @ mo_a.T, (mo_b * occ) @ mo_b.T])
+
+
+def _uks_hessian(uks_mf):
+    """(Hessian product, diagonal) of real UKS → UKS rotations, from canonical converged orbitals.
+
+    The same operator as PySCF's internal UHF stability analysis (``mf.stability(internal=True)``; twice
+    the product of its second-order SCF Hessian): orbital-energy differences plus the response of the
+    density change, built on ``mf.gen_response(hermi=1)``, α rotations first.
+    """
+    mo_energy, mo_coeff, mo_occ = uks_mf.mo_energy, uks_mf.mo_coeff, uks_mf.mo_occ
+    blocks = []
+    for energy, coeff, occ in zip(mo_energy, mo_coeff, mo_occ):
+        occupied, virtual = occ > 0, occ == 0
+        blocks.append((coeff[:, occupied], coeff[:, virtual], energy[virtual][:, None] - energy[occupied][None, :]))
+    sizes = [gaps.size for _, _, gaps in blocks]
+    response = uks_mf.gen_response(hermi=1)
+
+    def hessian_times(x):
+        parts = np.split(np.asarray(x), [sizes[0]])
+        changes = []
+        for (orbo, orbv, gaps), part in zip(blocks, parts):
+            half = orbv @ part.reshape(gaps.shape) @ orbo.T
+            changes.append(half + half.T)
+        potential = response(np.array(changes))
+        out = [gaps * part.reshape(gaps.shape) + orbv.T @ v @ orbo
+               for (orbo, orbv, gaps), part, v in zip(blocks, parts, potential)]
+        return 2.0 * np.concatenate([o.ravel() for o in out])
+
+    return hessian_times, 2.0 * np.concatenate([gaps.ravel() for _, _, gaps in blocks])
+
+
+def uks_internal_instability(uks_mf) -> tuple[float | None, np.ndarray | None]:
+    """Lowest UKS → UKS eigenvalue and, when it is an instability, the rotated orbitals (2, nao, nmo).
+    The eigenvalue is None when the solution has no rotation to test."""
+    from pyscf import lib
+
+    hessian_times, diagonal = _uks_hessian(uks_mf)
+    eigenvalue, vector = _lowest_root(hessian_times, diagonal, uks_mf.verbose)
+    lib.logger.info(uks_mf, "UKS internal stability: lowest orbital-Hessian eigenvalue %s", eigenvalue)
+    if eigenvalue is None or eigenvalue >= UNSTABLE_EIGENVALUE:
+        return eigenvalue, None
+    n_alpha = int(np.count_nonzero(uks_mf.mo_occ[0] > 0) * np.count_nonzero(uks_mf.mo_occ[0] == 0))
+    return eigenvalue, np.array([rotate_orbitals(c, o, v) for c, o, v in
+                                 zip(uks_mf.mo_coeff, uks_mf.mo_occ, np.split(vector, [n_alpha]))])
