@@ -22,7 +22,7 @@ import numpy as np
 from fourfold.compute.levels import get_level
 from fourfold.compute.pyscf_engine import run_scf
 from fourfold.compute.relax import relax
-from fourfold.compute.threads import limited_threads
+from fourfold.compute.threads import thread_limits
 from fourfold.compute.xtb_engine import XtbPotential
 from fourfold.geometry.builder import build
 from fourfold.geometry.isomers import isomers
@@ -50,7 +50,7 @@ def main() -> None:
     gas = get_level("quick")
     media = {"gas": gas, "solvent": dataclasses.replace(gas, solvent=args.solvent)}
     cpu = {"gas": 0.0, "solvent": 0.0}
-    with limited_threads(1):
+    with thread_limits(1):
         for entry in study.complexes:
             cx = entry.complex
             states = {"T-4": max(entry.spins), "SP-4": min(entry.spins)}

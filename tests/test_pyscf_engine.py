@@ -161,12 +161,44 @@ def test_pyscf_output_goes_to_the_log_not_the_terminal(tmp_path, capfd):
     assert result.log_path == str(log) and "converged SCF energy" in log.read_text()
 
 
-def test_thread_count_is_restored_after_the_call():
-    from pyscf import lib
+def test_a_run_limits_every_thread_pool_and_leaves_the_caller_as_it_was():
+    # Library hygiene (common practice, no source): a calculation may not change the caller's
+    # environment or thread pools; inside it, every BLAS/OpenMP pool runs the requested count.
+    import os
 
-    before = lib.num_threads()
-    engine.run_scf(crawford_water(), 0, 0, HF_STO3G, threads=1)
-    assert lib.num_threads() == before
+    from pyscf import lib
+    from threadpoolctl import threadpool_info, threadpool_limits
+
+    from fourfold.compute.threads import pyscf_threads
+
+    with threadpool_limits(limits=2), lib.with_omp_threads(2):  # a caller with two threads, not the default
+        environment, pools, omp = dict(os.environ), threadpool_info(), lib.num_threads()
+        with pyscf_threads(1):
+            assert lib.num_threads() == 1
+            assert {pool["filepath"]: pool["num_threads"] for pool in threadpool_info()} == {
+                pool["filepath"]: 1 for pool in threadpool_info()}
+        engine.run_scf(crawford_water(), 0, 0, HF_STO3G, threads=1)
+        assert dict(os.environ) == environment
+        assert threadpool_info() == pools and lib.num_threads() == omp == 2
+
+
+def test_triplet_hessian_of_minimal_basis_h2_is_the_closed_form():
+    # Two-orbital RHF -> UHF (triplet) stability: (A + B) = (e_u - e_g) - J_gu - K_gu (Seeger & Pople,
+    # J. Chem. Phys. 1977, 66, 3045; from memory). Negative past the Coulson-Fischer point (~1.2 A).
+    from pyscf import ao2mo
+
+    from fourfold.compute import stability
+    from fourfold.compute.scf_ladder import mean_field
+
+    for distance, unstable in ((0.74, False), (3.0, True)):
+        mol = engine.build_mole(h2(distance), 0, 0, "sto-3g", ecp=None)
+        mf = mean_field(mol, HF_STO3G, restricted=True, grid_level=0)
+        mf.kernel()
+        eri = ao2mo.kernel(mol, mf.mo_coeff, compact=False).reshape(2, 2, 2, 2)
+        closed_form = mf.mo_energy[1] - mf.mo_energy[0] - eri[0, 0, 1, 1] - eri[0, 1, 1, 0]
+        eigenvalue, uks_density = stability.rks_to_uks_instability(mf)
+        assert eigenvalue == pytest.approx(closed_form, abs=1e-6)
+        assert (uks_density is not None) == unstable
 
 
 def test_gas_phase_dianion_gets_a_note():

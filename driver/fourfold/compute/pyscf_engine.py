@@ -1,15 +1,16 @@
-"""PySCF engine: Mole building (with ECPs), the SCF ladder, singlet stability, D3(BJ), C-PCM, gradients, Hessians.
+"""PySCF engine: Mole building (with ECPs), guesses, the state search, D3(BJ), C-PCM, gradients, Hessians.
 
 Inputs are an ``ase.Atoms`` (positions in Å), the total charge and 2S (PySCF's ``mol.spin``) and a
 ``Level``. Results are plain data (``ScfResult``) so a worker process can hand them to the driver.
 
-Decisions (fourfold defaults, listed in docs/sources.md#fourfold-defaults):
+Decisions:
 - Closed-shell singlets run restricted; open shells unrestricted. A singlet is then checked for an
-  RKS → UKS instability (PySCF's external stability analysis); when a lower UKS solution exists it is
-  converged and reported as a broken-symmetry singlet with its ⟨S²⟩, never as a closed shell.
-- The SCF ladder (``RUNGS``) runs until one rung converges: DIIS from the minao guess (or the given
-  guess), level shift + damping, second order (newton), Fermi smearing to get a guess followed by an
-  integer-occupation SCF. Non-convergence after the ladder is a result with ``converged=False``.
+  RKS → UKS instability (``compute.stability``); when a lower UKS solution exists it is converged and
+  reported as a broken-symmetry singlet with its ⟨S²⟩, never as a closed shell.
+- Each state is converged from several starts and every open-shell solution is checked for an internal
+  instability, followed downhill (``compute.state_search``); the lowest solution of the right spin
+  character is kept. Each start climbs the SCF ladder (``compute.scf_ladder``) until a rung converges;
+  non-convergence of every start is a result with ``converged=False``.
 - D3(BJ) comes from the ``dftd3`` package (``DFTD3Dispersion``; PySCF's own ``mf.disp`` hook needs
   pyscf-dispersion, which is not a dependency) and is added to the energy and the gradient here.
 - PySCF output goes to the per-calculation log file (or nowhere), never to the terminal: PySCF copies
@@ -19,27 +20,22 @@ Decisions (fourfold defaults, listed in docs/sources.md#fourfold-defaults):
 from __future__ import annotations
 
 import contextlib
-import ctypes
-import glob
 import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
 from ..errors import ComputeError, InputError, NotConverged
-from .levels import Level, solvent_epsilon
+from ..units import HARTREE_KJ_MOL
+from .levels import Level
+from .scf_ladder import RUNGS, MeanFields, finish_on_grid
+from .state_search import BROKEN_SYMMETRY_S2, Outcome, right_spin_character, search
+from .threads import pyscf_threads
 
-RUNGS = ("diis", "shift_damp", "newton", "smearing")
-S2_TOLERANCE = 0.1            # |<S²> − S(S+1)| above this flags spin contamination (fourfold default)
-BROKEN_SYMMETRY_S2 = 0.1      # a singlet UKS solution with <S²> above this is open-shell
-LOWER_ENERGY_HARTREE = 1e-6   # a UKS singlet must lie this far below the RKS one to be kept
+S2_TOLERANCE = 0.1            # |<S²> − S(S+1)| above this flags spin contamination (common practice, no source)
 AUFBAU_TOLERANCE_HARTREE = 1e-5
-SHIFT_HARTREE = 0.3           # level shift of the second rung (common practice, no source)
-DAMPING = 0.5                 # density damping of the second rung (common practice, no source)
-SMEARING_SIGMA_HARTREE = 0.01  # Fermi smearing width of the fourth rung (common practice, no source)
 ECP_MIN_Z = 37                # 4d/5d metals and everything heavier than Kr get an ECP
 LOG_VERBOSITY = 4             # PySCF's INFO: SCF cycles and summaries, without timings
 
@@ -57,6 +53,17 @@ class ScfResult:
     Arrays: ``mo_energy_hartree``, ``mo_coeff``, ``mo_occ`` (leading axis of 2 for UKS), the converged
     ``density`` (AO basis, reusable as a guess) and ``fock_hartree`` (AO basis, the KS/Fock operator at
     convergence, for the d-block projection). ``mole_json`` rebuilds the Mole (``pyscf.gto.loads``).
+
+    The state search (``fourfold.compute.state_search``): ``starts`` holds one plain record per start
+    (``label``, ``energy_hartree`` with dispersion, ``converged``, ``s2``, ``cycles``, ``restricted``,
+    ``instabilities_followed``, ``stability_eigenvalue``), ``start_won`` the label of the start whose
+    solution this is, ``spread_kj_mol`` the highest minus the lowest converged start energy.
+    ``stability_eigenvalue``: the lowest orbital-Hessian eigenvalue of this solution (hartree; RKS → UKS
+    for a restricted singlet, UKS internal otherwise; None when not analysed; negative = unstable).
+    ``right_spin_character``: ⟨S²⟩ nearer S(S+1) than the next spin state's value. With a d target:
+    ``d_target`` (its α/β level occupations and level energies), ``d_occupation`` (α row, β row: electrons
+    in the target's five levels, ascending) and ``occupation_matches`` (each degenerate set holds the
+    intended count per spin); None without a target.
     """
 
     energy_hartree: float
@@ -82,6 +89,14 @@ class ScfResult:
     mo_occ: np.ndarray = field(repr=False)
     density: np.ndarray = field(repr=False)
     fock_hartree: np.ndarray = field(repr=False)
+    starts: tuple[dict, ...] = ()
+    start_won: str | None = None
+    spread_kj_mol: float = 0.0
+    stability_eigenvalue: float | None = None
+    right_spin_character: bool = True
+    d_target: dict | None = None
+    d_occupation: tuple[tuple[float, ...], tuple[float, ...]] | None = None
+    occupation_matches: bool | None = None
 
 
 # ---------------------------------------------------------------------------------------------- Mole
@@ -137,38 +152,7 @@ def build_mole(atoms, charge: int, spin2s: int, basis: str, ecp: str | None = "a
     return mol
 
 
-# ------------------------------------------------------------------------------------------- threads
-
-def _numpy_openblas():
-    """numpy's bundled OpenBLAS (its threads are not PySCF's OpenMP threads), or None."""
-    import numpy
-
-    pattern = os.path.join(os.path.dirname(os.path.dirname(numpy.__file__)), "numpy.libs", "*openblas*.so*")
-    for path in glob.glob(pattern):
-        lib = ctypes.CDLL(path)
-        for getter, setter in (("scipy_openblas_get_num_threads64_", "scipy_openblas_set_num_threads64_"),
-                               ("openblas_get_num_threads", "openblas_set_num_threads")):
-            if hasattr(lib, getter) and hasattr(lib, setter):
-                return getattr(lib, getter), getattr(lib, setter)
-    return None
-
-
-@contextlib.contextmanager
-def _threads(threads: int):
-    """PySCF's OpenMP threads and numpy's BLAS threads set to ``threads`` for the calculation."""
-    from pyscf import lib
-
-    blas = _numpy_openblas()
-    old_blas = blas[0]() if blas else None
-    with lib.with_omp_threads(int(threads)):
-        if blas:
-            blas[1](int(threads))
-        try:
-            yield
-        finally:
-            if blas:
-                blas[1](old_blas)
-
+# ------------------------------------------------------------------------------------------- output
 
 @contextlib.contextmanager
 def _log_stream(log_path):
@@ -182,31 +166,7 @@ def _log_stream(log_path):
         yield stream
 
 
-# -------------------------------------------------------------------------------------- mean fields
-
-def _mean_field(mol, level: Level, restricted: bool, grid_level: int):
-    """The SCF object for ``level`` on ``mol``: RKS/UKS (RHF/UHF), density fitting, C-PCM."""
-    from pyscf import dft, scf
-
-    if level.method == "hf":
-        mf = scf.RHF(mol) if restricted else scf.UHF(mol)
-    elif level.method == "dft":
-        mf = dft.RKS(mol) if restricted else dft.UKS(mol)
-        mf.xc = level.functional
-        mf.grids.level = grid_level
-    else:
-        raise InputError(f"level '{level.name}' is a {level.method} level: the PySCF engine runs hf and dft only")
-    if level.density_fit:
-        mf = mf.density_fit()
-    if level.solvent is not None:
-        mf = mf.PCM()
-        mf.with_solvent.method = "C-PCM"
-        mf.with_solvent.eps = solvent_epsilon(level.solvent)
-    mf.conv_tol = level.conv_tol
-    mf.max_cycle = level.max_cycles
-    mf.chkfile = None
-    return mf
-
+# -------------------------------------------------------------------------------------- dispersion
 
 def dispersion_correction(mol, level: Level) -> tuple[float, np.ndarray]:
     """D3(BJ) energy (Eh) and gradient (Eh/bohr) from the dftd3 package, zeros without dispersion."""
@@ -222,18 +182,6 @@ def dispersion_correction(mol, level: Level) -> tuple[float, np.ndarray]:
     return float(energy), np.asarray(gradient)
 
 
-class _CycleCounter:
-    """SCF callback counting iterations (PySCF passes 'cycle' for DIIS, 'imacro' for newton)."""
-
-    def __init__(self):
-        self.count = 0
-
-    def __call__(self, envs: dict[str, Any]):
-        index = envs.get("cycle", envs.get("imacro"))
-        if index is not None:
-            self.count = max(self.count, int(index) + 1)
-
-
 def _spin_form(dm: np.ndarray | None, restricted: bool, nao: int) -> np.ndarray | None:
     """A density in the shape the SCF wants: (nao, nao) for RKS, (2, nao, nao) for UKS."""
     if dm is None:
@@ -246,10 +194,11 @@ def _spin_form(dm: np.ndarray | None, restricted: bool, nao: int) -> np.ndarray 
     return dm if dm.ndim == 3 else np.array((dm * 0.5, dm * 0.5))
 
 
-def _guess_density(mol, guess, restricted: bool) -> tuple[np.ndarray | None, str | None]:
+def _guess_density(mol, guess, restricted: bool, keep_spin: bool = False) -> tuple[np.ndarray | None, str | None]:
     """Density from a guess: an array, an ScfResult or a PySCF chkfile; projected across bases.
 
-    A guess from another spin state passes on its total density, split evenly between α and β.
+    A guess from another spin state passes on its total density, split evenly between α and β, unless
+    ``keep_spin`` (a neighbour start of the state search keeps its α and β densities).
     Returns (density or None, a note when the guess could not be used).
     """
     from pyscf import gto, scf
@@ -283,7 +232,7 @@ def _guess_density(mol, guess, restricted: bool) -> tuple[np.ndarray | None, str
             mo_coeff = project_mo_nr2nr(old_mol, mo_coeff, mol)
         dm = _density_from_orbitals(mo_coeff, mo_occ)
     old_spin2s = int(round(mo_occ[0].sum() - mo_occ[1].sum())) if mo_occ.ndim == 2 else 0
-    if old_spin2s != mol.spin and dm.ndim == 3:
+    if old_spin2s != mol.spin and dm.ndim == 3 and not keep_spin:
         # Another spin state: carry over the spatial density, not its spin polarisation (measured on
         # T-4 [CoCl4]2-: the quartet's own α/β densities seed the doublet worse than a cold start).
         dm = dm[0] + dm[1]
@@ -294,153 +243,6 @@ def _density_from_orbitals(mo_coeff: np.ndarray, mo_occ: np.ndarray) -> np.ndarr
     if mo_coeff.ndim == 3:
         return np.array([(c * o) @ c.T for c, o in zip(mo_coeff, mo_occ)])
     return (mo_coeff * mo_occ) @ mo_coeff.T
-
-
-# ---------------------------------------------------------------------------------------- the ladder
-
-@dataclass
-class _Run:
-    """Working state of one ladder run (internal; the mean field stays inside the worker)."""
-
-    mf: Any
-    converged: bool
-    rung: str | None
-    cycles: int
-    failures: list[str]
-
-
-def _run_rung(mf, rung: str, dm0, max_cycle: int) -> tuple[Any, bool, int, str | None]:
-    """Run one rung from ``dm0``; returns (mean field used, converged, cycles, failure note)."""
-    counter = _CycleCounter()
-    try:
-        if rung == "diis":
-            work = mf.copy()
-            work.max_cycle = max_cycle
-            work.callback = counter
-            work.kernel(dm0=dm0)
-        elif rung == "shift_damp":
-            work = mf.copy()
-            work.level_shift, work.damp, work.max_cycle = SHIFT_HARTREE, DAMPING, max_cycle
-            work.callback = counter
-            work.kernel(dm0=dm0)
-        elif rung == "newton":
-            work = mf.copy().newton()
-            work.max_cycle = max_cycle
-            work.callback = counter
-            work.kernel(dm0=dm0)
-        elif rung == "smearing":
-            smeared = mf.copy().smearing(sigma=SMEARING_SIGMA_HARTREE, method="fermi", fix_spin=True)
-            smeared.max_cycle, smeared.callback = max_cycle, counter
-            smeared.kernel(dm0=dm0)
-            work = mf.copy()
-            work.max_cycle, work.callback = max_cycle, counter
-            offset = counter.count
-            counter.count = 0
-            work.kernel(dm0=smeared.make_rdm1())
-            counter.count += offset
-        else:
-            raise ValueError(rung)
-    except (np.linalg.LinAlgError, RuntimeError, ValueError, FloatingPointError) as exc:
-        return mf, False, counter.count, f"{rung}: {type(exc).__name__}: {exc}"
-    return work, bool(work.converged), counter.count, None
-
-
-def _rung_cap(rung: str, max_cycles: int) -> int:
-    """Cycle budget of a rung: newton's macro-iterations each cost several Fock builds, so fewer."""
-    return max(1, -(-max_cycles // 4)) if rung == "newton" else max_cycles
-
-
-def _ladder(mf, dm0, cycle_cap_first_rung: int | None, rungs: tuple[str, ...] = RUNGS) -> _Run:
-    """Climb ``rungs`` from ``dm0`` until one converges; each rung starts from the last density reached."""
-    cycles, failures, last = 0, [], None
-    for index, rung in enumerate(rungs):
-        cap = _rung_cap(rung, mf.max_cycle)
-        if index == 0 and cycle_cap_first_rung is not None:
-            cap = int(cycle_cap_first_rung)
-        work, converged, used, failure = _run_rung(mf, rung, dm0, cap)
-        cycles += used
-        if failure:
-            failures.append(failure)
-        if work.mo_coeff is not None:
-            last = work
-            dm0 = work.make_rdm1()
-        if converged:
-            return _Run(work, True, rung, cycles, failures)
-    return _Run(last if last is not None else mf, False, None, cycles, failures)
-
-
-def _finish_on_grid(run: _Run, grid_level: int) -> _Run:
-    """Re-converge on the final grid from the light-grid density (same rung, cycles added)."""
-    mf = run.mf
-    if not run.converged or not hasattr(mf, "grids") or mf.grids.level == grid_level:
-        return run
-    work = mf._scf.copy() if hasattr(mf, "_scf") else mf.copy()  # after newton: finish with plain DIIS
-    work.grids = work.grids.copy()
-    work.grids.level = grid_level
-    work.grids.build()
-    counter = _CycleCounter()
-    work.callback = counter
-    work.kernel(dm0=mf.make_rdm1())
-    return _Run(work, bool(work.converged), run.rung, run.cycles + counter.count, run.failures)
-
-
-# ------------------------------------------------------------------------------ singlet stability
-
-STABILITY_TOLERANCE = 1e-4       # Davidson convergence, as PySCF's stability default
-UNSTABLE_EIGENVALUE = -1e-5      # a lower orbital-Hessian eigenvalue means an instability (PySCF's test)
-STABILITY_START_VECTORS = 4      # Davidson start vectors: unit rotations at the smallest diagonal elements
-
-
-def _unstable_uks_guess(rks_mf):
-    """UKS density along the lowest RKS → UKS (triplet) instability found, or None when none is found.
-
-    The RHF → UHF part of PySCF's external stability analysis, one root: ``mf.stability(external=True)``
-    also runs a real → complex analysis and three roots, which measured 42 s CPU against 11 s for the
-    SCF itself on SP-4 [NiCl4]2- (B3LYP/def2-SVP); that part cannot produce a UKS solution.
-    """
-    from pyscf import lib
-    from pyscf.scf import stability
-
-    _, _, hessian_times, diagonal = stability._gen_hop_rhf_external(rks_mf)
-
-    def precondition(dx, e, x0):
-        shifted = diagonal - e
-        shifted[abs(shifted) < 1e-8] = 1e-8
-        return dx / shifted
-
-    # Start from the rotations with the smallest diagonal (the orbital pairs across the smallest gaps),
-    # not PySCF's single vector 1/diagonal: measured with B3LYP/def2-SVP on xTB-held SP-4 structures,
-    # NiCl2(PMe3)2 trans 6 Hessian products instead of 28 (15 s against 68 s on one core), [Ni(CN)4]2-
-    # 7 instead of 17, and the instabilities of [NiCl4]2- and [NiBr4]2- found in 4–6; the verdict
-    # (stable or not) was the same in every case.
-    starts = []
-    for index in np.argsort(diagonal)[:STABILITY_START_VECTORS]:
-        unit = np.zeros_like(diagonal)
-        unit[index] = 1.0
-        starts.append(unit)
-    eigenvalue, vector = lib.davidson(hessian_times, starts, precondition, tol=STABILITY_TOLERANCE, nroots=1,
-                                      verbose=rks_mf.verbose)
-    lib.logger.info(rks_mf, "RKS -> UKS stability: lowest orbital-Hessian eigenvalue %.6g", eigenvalue)
-    if eigenvalue >= UNSTABLE_EIGENVALUE:
-        return None
-    mo_a, mo_b = stability._rotate_mo(rks_mf.mo_coeff, rks_mf.mo_occ, vector), rks_mf.mo_coeff
-    occ = rks_mf.mo_occ * 0.5
-    return np.array([(mo_a * occ) @ mo_a.T, (mo_b * occ) @ mo_b.T])
-
-
-def _mixed_homo_lumo_guess(mf) -> np.ndarray:
-    """Broken-symmetry guess from restricted orbitals: α gets (HOMO+LUMO)/√2, β (HOMO−LUMO)/√2.
-
-    Common practice (e.g. a 'guess=mix' start), no source.
-    """
-    mo, occ = mf.mo_coeff, mf.mo_occ
-    homo = int(np.flatnonzero(occ > 0)[-1])
-    lumo = homo + 1
-    mo_a, mo_b = mo.copy(), mo.copy()
-    mo_a[:, homo] = (mo[:, homo] + mo[:, lumo]) / np.sqrt(2)
-    mo_b[:, homo] = (mo[:, homo] - mo[:, lumo]) / np.sqrt(2)
-    half = occ * 0.5
-    return np.array([(mo_a * half) @ mo_a.T, (mo_b * half) @ mo_b.T])
 
 
 # ----------------------------------------------------------------------------------------- results
@@ -476,9 +278,27 @@ def _fock_from_orbitals(mf, mol, mo_energy: np.ndarray, mo_coeff: np.ndarray, dm
     return (projected * mo_energy) @ projected.T
 
 
-def _result(run: _Run, mol, spin2s: int, restricted: bool, dispersion: float, started: float, log_path,
-            notes: list[str], extra_cycles: int) -> ScfResult:
-    mf = run.mf
+def _search_fields(outcome: Outcome, mol, spin2s: int, dispersion: float, d_target, fock, dm) -> dict:
+    """The state-search part of a result: every start, the winner, the spread and the d configuration."""
+    from .dblock import occupation_matches, target_occupations
+
+    records = tuple(solution.record(spin2s, dispersion) for solution in outcome.solutions)
+    energies = [r["energy_hartree"] for r in records if r["converged"]]
+    winner = outcome.winner
+    fields = {"starts": records, "start_won": winner.label,
+              "spread_kj_mol": (max(energies) - min(energies)) * HARTREE_KJ_MOL if energies else 0.0,
+              "stability_eigenvalue": winner.eigenvalue}
+    if d_target is not None and winner.run.mf.mo_coeff is not None:
+        occupations = target_occupations(mol, fock, dm, d_target)
+        fields.update(d_target=d_target.as_dict(), d_occupation=tuple(tuple(float(x) for x in row)
+                                                                       for row in occupations),
+                      occupation_matches=occupation_matches(occupations, d_target))
+    return fields
+
+
+def _result(outcome: Outcome, run, mol, spin2s: int, dispersion: float, started: float, log_path,
+            notes: list[str], d_target=None) -> ScfResult:
+    mf, restricted = run.mf, outcome.winner.restricted
     s2_expected = spin2s / 2.0 * (spin2s / 2.0 + 1.0)
     if mf.mo_coeff is None:  # the ladder failed before a single diagonalisation
         empty = np.zeros((0,))
@@ -491,7 +311,15 @@ def _result(run: _Run, mol, spin2s: int, restricted: bool, dispersion: float, st
         fock = _fock_from_orbitals(mf, mol, mo_e, mo_c, dm)
         energy = float(mf.e_tot) + dispersion
         gap, aufbau = _gap_and_aufbau(mo_e, mo_o)
-    cycles = run.cycles + extra_cycles
+    searched = _search_fields(outcome, mol, spin2s, dispersion, d_target, fock, dm)
+    if searched.get("occupation_matches") is False:
+        notes.append("the converged d occupation differs from the intended configuration")
+    if mf.mo_coeff is not None and not aufbau:
+        notes.append("the solution is not aufbau: an empty orbital lies below an occupied one")
+    character = bool(np.isfinite(s2) and right_spin_character(s2, spin2s))
+    if run.converged and not character:
+        notes.append(f"<S2> = {s2:.2f} is nearer the next higher spin state: no start gave a purer solution")
+    cycles = outcome.cycles + (run.cycles - outcome.winner.run.cycles)
     reason = "" if run.converged else (
         f"SCF not converged after rungs {', '.join(RUNGS)} ({cycles} cycles)"
         + (f"; {'; '.join(run.failures)}" if run.failures else ""))
@@ -503,61 +331,49 @@ def _result(run: _Run, mol, spin2s: int, restricted: bool, dispersion: float, st
         homo_lumo_gap_hartree=gap, aufbau=aufbau, dispersion_hartree=dispersion,
         wall_seconds=time.perf_counter() - started, log_path=str(log_path) if log_path else None,
         notes=tuple(notes), mole_json=mol.dumps(), mo_energy_hartree=mo_e, mo_coeff=mo_c, mo_occ=mo_o,
-        density=np.asarray(dm), fock_hartree=np.asarray(fock),
+        density=np.asarray(dm), fock_hartree=np.asarray(fock), right_spin_character=character, **searched,
     )
 
 
 FORMS = (None, "restricted", "unrestricted")
 
 
-def _solve(mol, level: Level, spin2s: int, guess, cycle_cap_first_rung, notes: list[str], form):
-    """The ladder and, for a singlet without a given form, the broken-symmetry search.
-
-    A singlet (form None) runs RKS with DIIS only (at most half the cycle budget). If that converges,
-    the RKS → UKS stability analysis decides whether a broken-symmetry UKS solution is sought; if it
-    does not, the UKS search starts at once from a HOMO/LUMO-mixed guess. The stronger rungs are spent
-    on UKS, whose space contains the closed shell, not on RKS (measured, B3LYP/def2-SVP: tetrahedral singlets converged
-    only as broken-symmetry UKS solutions, and one did not converge restricted even with newton).
-    Returns (run, restricted, cycles spent on the discarded alternative).
-    """
-    scf_grid = level.scf_grid_level if level.scf_grid_level is not None else level.grid_level
-    restricted = spin2s == 0 and form != "unrestricted"
-    dm0, note = _guess_density(mol, guess, restricted)
-    if note:
-        notes.append(note)
-    search = restricted and form is None
-    rungs = RUNGS[:1] if search else RUNGS
-    if search and cycle_cap_first_rung is None:
-        # Closed shells that converge do so in 10–24 DIIS cycles (measured, B3LYP/def2-SVP); spend no more on the probe.
-        cycle_cap_first_rung = max(1, level.max_cycles // 2)
-    run = _finish_on_grid(_ladder(_mean_field(mol, level, restricted, scf_grid), dm0, cycle_cap_first_rung,
-                                  rungs), level.grid_level)
-    if not search:
-        return run, restricted, 0
-    if run.converged:
-        uks_dm = _unstable_uks_guess(run.mf)
-        if uks_dm is None:
-            notes.append("RKS solution stable towards UKS")
-            return run, True, 0
-    elif run.mf.mo_coeff is not None:
-        uks_dm = _mixed_homo_lumo_guess(run.mf)
-        notes.append("RKS did not converge with DIIS: UKS from a HOMO/LUMO-mixed guess")
-    else:
-        return run, True, 0
-    uks = _finish_on_grid(_ladder(_mean_field(mol, level, False, scf_grid), uks_dm, None), level.grid_level)
-    if not uks.converged:
-        notes.append("broken-symmetry UKS search did not converge")
-        return (uks, False, run.cycles) if not run.converged else (run, True, uks.cycles)
-    if not run.converged or uks.mf.e_tot < run.mf.e_tot - LOWER_ENERGY_HARTREE:
-        if _s2(uks.mf, False, 0) <= BROKEN_SYMMETRY_S2:
-            notes.append("UKS singlet converged to a closed-shell solution")
-        return uks, False, run.cycles
-    notes.append("UKS search from the RKS instability found no lower solution")
-    return run, True, uks.cycles
+def _neighbour_densities(mol, neighbours, notes: list[str]) -> list[tuple[str, np.ndarray]]:
+    """(label, UKS density) of each neighbouring-state guess, with its own spin polarisation kept."""
+    found = []
+    for index, neighbour in enumerate(neighbours):
+        dm, note = _guess_density(mol, neighbour, restricted=False, keep_spin=True)
+        if note:
+            notes.append(f"neighbour {index + 1}: {note}")
+        if dm is None:
+            continue
+        spin = getattr(neighbour, "spin2s", None)
+        found.append((f"neighbour 2S={spin}" if spin is not None else f"neighbour {index + 1}", dm))
+    return found
 
 
-def _calculate(atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form):
-    """Everything but the result packing: (run, mol, restricted, dispersion, notes, extra cycles)."""
+def _d_start(mol, d_target):
+    """The d-configuration start: the target's levels occupied in the orbitals of a solution's operator
+    (the lowest so far; PySCF's minao guess when nothing has converged). None when the lowest solution
+    already holds the intended occupation: a start built to it could only come back there."""
+    from .dblock import d_configuration_density, occupation_matches, target_occupations
+
+    def start(mf, notes: list[str]):
+        if mf.mo_coeff is None:
+            return d_configuration_density(mol, mf.get_fock(dm=mf.get_init_guess()), d_target)
+        dm = mf.make_rdm1()
+        fock = _fock_from_orbitals(mf, mol, np.asarray(mf.mo_energy), np.asarray(mf.mo_coeff), dm)
+        if mf.converged and occupation_matches(target_occupations(mol, fock, dm, d_target), d_target):
+            notes.append("d-configuration start skipped: the lowest solution already has the intended d occupation")
+            return None
+        return d_configuration_density(mol, fock, d_target)
+
+    return start
+
+
+def _calculate(atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form,
+               neighbours=(), d_target=None, run_search=True):
+    """Everything but the result packing: (outcome, finished run, mol, dispersion, notes)."""
     if form not in FORMS:
         raise InputError(f"form '{form}' is not one of restricted, unrestricted or None (decide)")
     mol = build_mole(atoms, charge, spin2s, level.basis, level.ecp, stream=stream)
@@ -565,47 +381,67 @@ def _calculate(atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung
     if level.solvent is None and charge <= -2:
         notes.append(f"charge {charge} in the gas phase: the outermost electrons may be unbound "
                      "(a solvent model is advised)")
-    run, restricted, extra = _solve(mol, level, spin2s, guess, cycle_cap_first_rung, notes, form)
+    restricted_start = spin2s == 0 and form != "unrestricted"
+    dm0, note = _guess_density(mol, guess, restricted_start)
+    if note:
+        notes.append(note)
+    scf_grid = level.scf_grid_level if level.scf_grid_level is not None else level.grid_level
+    fields = MeanFields(mol, level, scf_grid)
+    outcome = search(fields, spin2s, dm0, cycle_cap_first_rung, notes, form,
+                     neighbours=_neighbour_densities(mol, neighbours, notes) if run_search else (),
+                     d_start=_d_start(mol, d_target) if d_target is not None and run_search else None,
+                     run_search=run_search)
+    run = finish_on_grid(outcome.winner.run, level.grid_level)
     if chkfile is not None and run.mf.mo_coeff is not None:
         from pyscf.scf import chkfile as chk
 
         chk.dump_scf(mol, str(chkfile), run.mf.e_tot, run.mf.mo_energy, run.mf.mo_coeff, run.mf.mo_occ)
     dispersion, _ = dispersion_correction(mol, level)
-    return run, mol, restricted, dispersion, notes, extra
+    return outcome, run, mol, dispersion, notes
 
 
 def run_scf(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=None, threads: int = 1,
-            cycle_cap_first_rung: int | None = None, chkfile=None, form: str | None = None) -> ScfResult:
-    """One SCF single point at ``level``: ladder, singlet stability, D3(BJ), C-PCM.
+            cycle_cap_first_rung: int | None = None, chkfile=None, form: str | None = None,
+            neighbour_guesses=(), d_target=None, search_starts: bool = True) -> ScfResult:
+    """One SCF single point at ``level``: the state search, singlet stability, D3(BJ), C-PCM.
 
     ``guess``: None (minao), a density array, a previous ScfResult or a PySCF chkfile path (projected
-    to this basis if it differs). ``chkfile``: where to save the converged orbitals (PySCF format).
-    ``cycle_cap_first_rung`` caps the DIIS rung (the ladder then takes over). ``form``: None decides
-    (a singlet runs RKS, then the broken-symmetry search), ``"restricted"`` or ``"unrestricted"`` force
-    one (a relaxation keeps the form its first step found).
+    to this basis if it differs); the default start. ``chkfile``: where to save the converged orbitals
+    (PySCF format). ``cycle_cap_first_rung`` caps the default start's DIIS rung (the ladder then takes
+    over). ``form``: None decides (a singlet runs RKS, then the broken-symmetry search), ``"restricted"``
+    or ``"unrestricted"`` force one and run the default start alone (a relaxation keeps the form its first
+    step found).
+    ``neighbour_guesses``: converged results (or chkfiles, densities) of other spin states at the same
+    geometry, each one more start. ``d_target``: the intended d configuration (``dblock.DTarget``, e.g.
+    ``dblock.target_for``), one more start and the check of the converged occupation.
+    ``search_starts`` False: the default start only, no stability analysis of open shells.
     Never raises for non-convergence: the result has ``converged=False`` and a ``reason``.
     """
     started = time.perf_counter()
-    with _log_stream(log_path) as stream, _threads(threads):
-        run, mol, restricted, dispersion, notes, extra = _calculate(
-            atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form)
-        return _result(run, mol, spin2s, restricted, dispersion, started, log_path, notes, extra)
+    with _log_stream(log_path) as stream, pyscf_threads(threads):
+        outcome, run, mol, dispersion, notes = _calculate(
+            atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form,
+            neighbour_guesses, d_target, search_starts)
+        return _result(outcome, run, mol, spin2s, dispersion, started, log_path, notes, d_target)
 
 
 # -------------------------------------------------------------------------------------- gradients
 
 def energy_gradient(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=None,
-                    threads: int = 1, form: str | None = None) -> tuple[float, np.ndarray, ScfResult]:
+                    threads: int = 1, form: str | None = None, neighbour_guesses=(), d_target=None,
+                    search_starts: bool = False) -> tuple[float, np.ndarray, ScfResult]:
     """Energy (Eh), gradient (Eh/bohr, shape (N, 3); SCF with C-PCM plus D3(BJ)) and the ScfResult.
 
+    The state search runs only when asked (``search_starts``), as at a relaxation's first step.
     Raises NotConverged (with the ScfResult as ``.result``) when the ladder fails: a gradient of an
     unconverged SCF would mislead the optimiser.
     """
     started = time.perf_counter()
-    with _log_stream(log_path) as stream, _threads(threads):
-        run, mol, restricted, dispersion, notes, extra = _calculate(
-            atoms, charge, spin2s, level, guess, stream, None, None, form)
-        result = _result(run, mol, spin2s, restricted, dispersion, started, log_path, notes, extra)
+    with _log_stream(log_path) as stream, pyscf_threads(threads):
+        outcome, run, mol, dispersion, notes = _calculate(
+            atoms, charge, spin2s, level, guess, stream, None, None, form, neighbour_guesses, d_target,
+            search_starts)
+        result = _result(outcome, run, mol, spin2s, dispersion, started, log_path, notes, d_target)
         if not result.converged:
             error = NotConverged(result.reason)
             error.result = result
@@ -619,34 +455,39 @@ def energy_gradient(atoms, charge: int, spin2s: int, level: Level, guess=None, l
 class PyscfPotential:
     """Callable ``positions_angstrom (N, 3) -> (energy_hartree, gradient_hartree_per_bohr)`` for relax.
 
-    Each call seeds the SCF with the previous call's converged density, and after the first call keeps
-    the form (RKS or UKS) that call found, so the singlet stability search runs once per relaxation.
+    The first call runs the state search (``neighbour_guesses``, ``d_target`` as in ``run_scf``; off with
+    ``search_starts=False``); each later call seeds the SCF with the previous call's converged density
+    and keeps the form (RKS or UKS) the first call found, so the search runs once per relaxation.
     ``last`` is the latest ScfResult, ``results`` all of them.
     """
 
     def __init__(self, atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=None,
-                 threads: int = 1):
+                 threads: int = 1, neighbour_guesses=(), d_target=None, search_starts: bool = True):
         self.atoms = atoms.copy()
         self.charge, self.spin2s, self.level = int(charge), int(spin2s), level
         self.guess, self.log_path, self.threads = guess, log_path, threads
+        self.neighbour_guesses, self.d_target, self.search_starts = tuple(neighbour_guesses), d_target, search_starts
         self.last: ScfResult | None = None
         self.results: list[ScfResult] = []
 
     def __call__(self, positions_angstrom) -> tuple[float, np.ndarray]:
         self.atoms.positions = np.asarray(positions_angstrom, dtype=float).reshape(-1, 3)
         if self.last is None:
-            guess, form = self.guess, None
+            energy, gradient, result = energy_gradient(
+                self.atoms, self.charge, self.spin2s, self.level, guess=self.guess, log_path=self.log_path,
+                threads=self.threads, neighbour_guesses=self.neighbour_guesses, d_target=self.d_target,
+                search_starts=self.search_starts)
         else:
-            guess, form = self.last.density, ("restricted" if self.last.restricted else "unrestricted")
-        energy, gradient, result = energy_gradient(self.atoms, self.charge, self.spin2s, self.level,
-                                                   guess=guess, log_path=self.log_path,
-                                                   threads=self.threads, form=form)
+            energy, gradient, result = energy_gradient(
+                self.atoms, self.charge, self.spin2s, self.level, guess=self.last.density,
+                log_path=self.log_path, threads=self.threads,
+                form="restricted" if self.last.restricted else "unrestricted")
         self.last = result
         self.results.append(result)
         return energy, gradient
 
 
-# --------------------------------------------------------------------------------------- Hessians
+# -------------------------------------------------------------------------------------- Hessians
 
 DISPERSION_STEP_BOHR = 1e-4  # central differences of the analytic D3(BJ) gradient (smooth, cheap)
 
@@ -699,10 +540,11 @@ def energy_hessian(atoms, charge: int, spin2s: int, level: Level, guess=None, lo
     if problem:
         raise InputError(f"{problem}: use finite differences of gradients (fourfold.compute.hessian)")
     started = time.perf_counter()
-    with _log_stream(log_path) as stream, _threads(threads):
-        run, mol, restricted, dispersion, notes, extra = _calculate(
-            atoms, charge, spin2s, level, guess, stream, None, None, form)
-        result = _result(run, mol, spin2s, restricted, dispersion, started, log_path, notes, extra)
+    with _log_stream(log_path) as stream, pyscf_threads(threads):
+        # the state search already ran on this structure's relaxation: one start from its orbitals
+        outcome, run, mol, dispersion, notes = _calculate(
+            atoms, charge, spin2s, level, guess, stream, None, None, form, run_search=False)
+        result = _result(outcome, run, mol, spin2s, dispersion, started, log_path, notes, None)
         if not result.converged:
             error = NotConverged(result.reason)
             error.result = result

@@ -251,7 +251,8 @@ def _single_point(spec, atoms, cx, context: JobContext) -> dict:
     from .pyscf_engine import run_scf
 
     scf = run_scf(atoms, spec.charge, spec.spin2s, _level(spec.engine), guess=context.guess,
-                  log_path=context.log_path, threads=context.threads, chkfile=context.chk_path)
+                  log_path=context.log_path, threads=context.threads, chkfile=context.chk_path,
+                  d_target=_d_target(cx, spec))
     found = {"energy_hartree": scf.energy_hartree, "converged": scf.converged, **scf_summary(scf)}
     if not scf.converged:
         found.update(status="failed", reason=f"SCF not converged: {scf.reason}")
@@ -264,13 +265,24 @@ def _single_point(spec, atoms, cx, context: JobContext) -> dict:
     return found
 
 
+def _d_target(cx, spec):
+    """The d configuration the ligand-field estimate gives this state (one more SCF start, and the check of
+    the converged occupation); None where the state is no ideal arrangement (path points)."""
+    from .dblock import target_for
+
+    if spec.is_path_point:
+        return None
+    return target_for(cx, spec.arrangement, spec.spin2s, spec.isomer or None)
+
+
 def _projected_singlet(bs, atoms, spec, context: JobContext) -> dict:
     """The triplet at the broken-symmetry singlet's geometry, and the singlet's Yamaguchi-projected energy."""
     from .pyscf_engine import run_scf
     from .spin_projection import projected_singlet_energy_hartree
 
+    # one start, from the BS solution itself: the partner is the triplet of those same two unpaired electrons
     hs = run_scf(atoms, spec.charge, 2, _level(spec.engine), guess=bs, log_path=context.log_path,
-                 threads=context.threads)
+                 threads=context.threads, search_starts=False)
     if not hs.converged:
         return {"projection_note": f"no projection: the triplet at this geometry did not converge ({hs.reason})"}
     return {"high_spin_energy_hartree": hs.energy_hartree, "high_spin_s2": hs.s2,
@@ -313,5 +325,8 @@ def scf_summary(scf) -> dict:
     return {"homo_energy_hartree": _homo_energy_hartree(scf), "rung": scf.rung, "cycles": scf.cycles, "s2": scf.s2,
             "s2_expected": scf.s2_expected, "spin_contaminated": scf.spin_contaminated, "broken_symmetry": scf.broken_symmetry,
             "homo_lumo_gap_hartree": scf.homo_lumo_gap_hartree, "aufbau": scf.aufbau, "scf_notes": list(scf.notes),
-            "dispersion_hartree": scf.dispersion_hartree}
+            "dispersion_hartree": scf.dispersion_hartree, "starts": [dict(start) for start in scf.starts],
+            "start_won": scf.start_won, "spread_kj_mol": scf.spread_kj_mol,
+            "right_spin_character": scf.right_spin_character, "occupation_matches": scf.occupation_matches,
+            "d_occupation": None if scf.d_occupation is None else [list(row) for row in scf.d_occupation]}
 

@@ -66,11 +66,11 @@ def job_process_body(job, parent: dict | None, log_path: str, chk_path: str | No
     try:
         _inject_fault(job.label)
         from ..compute.tasks import JobContext, run_task
-        from ..compute.threads import limited_threads
+        from ..compute.threads import thread_limits
 
         context = JobContext(log_path=log_path, chk_path=chk_path, threads=threads,
                              guess=parent.get("chkfile") if parent else None)
-        with limited_threads(threads):
+        with thread_limits(threads):
             result = run_task(job.task, job.spec, parent, context)
     except Exception as error:  # a failed job is a result; the driver records it
         first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
