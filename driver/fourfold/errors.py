@@ -15,3 +15,18 @@ class ComputeError(FourfoldError, RuntimeError):
 
 class NotConverged(ComputeError):
     """An SCF or a relaxation did not converge within its bounds."""
+
+
+def describe_os_error(error: OSError) -> str:
+    """An OSError as one line that says what to do: 'No space left on device: /study/records (free some
+    space, then rerun the same command)'."""
+    import errno
+
+    what = error.strerror or type(error).__name__
+    where = f": {error.filename}" if error.filename else ""
+    hint = {errno.ENOSPC: "free some space, then rerun the same command",
+            errno.EDQUOT: "free some space, then rerun the same command",
+            errno.EACCES: "the folder must be writable: fix its permissions or choose another --out folder",
+            errno.EPERM: "the folder must be writable: fix its permissions or choose another --out folder",
+            errno.EROFS: "the file system is read-only: choose another --out folder"}.get(error.errno)
+    return f"{what}{where}" + (f" ({hint})" if hint else "")

@@ -31,7 +31,7 @@ import tomllib
 from pathlib import Path
 
 from ..errors import ComputeError, InputError
-from .process import FAULT_ENV, complete_failure, exit_reason, job_paths, job_process_body
+from .process import FAULT_ENV, complete_failure, die_with_parent, exit_reason, job_paths, job_process_body
 
 _SUBMIT_COMMANDS = {"slurm": "sbatch", "pbs": "qsub"}
 # Exported in each batch job's script, so the Dask worker's own numpy starts with the job's thread count.
@@ -52,26 +52,12 @@ def job_process_main() -> None:
     """Body of a job's own process: arguments (pickled by the task that started it) on stdin, the
     result back on the original stdout; everything the job prints goes to its log (job_process_body)."""
     worker, job, parent, log_path, chk_path, threads = pickle.load(sys.stdin.buffer)
-    _die_with_worker(worker)
+    die_with_parent(worker)  # a lost worker leaves no job running unseen
     from multiprocessing.connection import Connection
 
     result_pipe = Connection(os.dup(1), readable=False)
     os.dup2(2, 1)  # stderr is the job's log already: nothing printed from here on can reach the result pipe
     job_process_body(job, parent, log_path, chk_path, threads, result_pipe)
-
-
-def _die_with_worker(worker: int) -> None:
-    """SIGKILL this job's process when the worker that started it dies (Linux), so a lost worker leaves
-    no job running unseen. Set here, not in a preexec hook: the worker has threads, and forking with a
-    hook there can deadlock."""
-    try:
-        import ctypes
-
-        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
-    except (OSError, AttributeError):
-        return
-    if os.getppid() != worker:  # the worker died before the signal was armed
-        os._exit(1)
 
 
 def _kill_worker_fault(label: str) -> None:

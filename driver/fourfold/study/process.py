@@ -16,10 +16,13 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from ..chem.notation import formula_slug
+from ..errors import describe_os_error
 
-# Test hook: FOURFOLD_FAULT="raise:TEXT" / "exit:TEXT" / "hang:TEXT" makes the job whose label contains TEXT
-# raise, end its process abruptly, or hang, so the reliability tests exercise real processes.
+# Test hook: FOURFOLD_FAULT="raise:TEXT" / "exit:TEXT" / "hang:TEXT" / "memory:TEXT" makes the job whose label
+# contains TEXT raise, end its process abruptly, hang, or run with almost no memory left (its address space
+# capped 64 MiB above what it has mapped at the start), so the reliability tests exercise real processes.
 FAULT_ENV = "FOURFOLD_FAULT"
+_FAULT_MEMORY_BYTES = 64 * 2**20
 
 
 def _inject_fault(label: str) -> None:
@@ -32,6 +35,39 @@ def _inject_fault(label: str) -> None:
                 os._exit(3)
             if mode == "hang":
                 time.sleep(10_000)
+            if mode == "memory":
+                _cap_memory(_FAULT_MEMORY_BYTES)
+
+
+def _cap_memory(extra_bytes: int) -> None:
+    import resource
+
+    with open("/proc/self/status", encoding="ascii") as status:
+        mapped = next(int(line.split()[1]) * 1024 for line in status if line.startswith("VmSize:"))
+    resource.setrlimit(resource.RLIMIT_AS, (mapped + extra_bytes, mapped + extra_bytes))
+
+
+def die_with_parent(parent: int) -> None:
+    """SIGKILL this process when its parent dies (Linux), so a job never outlives the process that started it
+    (a Dask worker, or the local pool's fork server, which ends with the driver). Armed in the child itself:
+    forking with a hook in a threaded parent can deadlock."""
+    try:
+        import ctypes
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        return
+    if os.getppid() != parent:  # the parent died before the signal was armed
+        os._exit(1)
+
+
+def local_job_main(job, parent: dict | None, log_path: str, chk_path: str | None, threads: int, conn) -> None:
+    """Body of a local pool's job process, forked from the fork server."""
+    from .stopping import job_process_signals
+
+    die_with_parent(os.getppid())
+    job_process_signals()
+    job_process_body(job, parent, log_path, chk_path, threads, conn)
 
 
 def job_paths(out_dir: Path, job) -> tuple[str, str | None]:
@@ -59,8 +95,13 @@ def _log_header(job, threads: int) -> str:
 
 def job_process_body(job, parent: dict | None, log_path: str, chk_path: str | None, threads: int, conn) -> None:
     """Run ``job`` in this (fresh) process and send its result through ``conn``."""
-    log = os.open(log_path, os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o644)
-    os.write(log, _log_header(job, threads).encode())
+    try:
+        log = os.open(log_path, os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o644)
+        os.write(log, _log_header(job, threads).encode())
+    except OSError as error:  # a full disk or a folder turned read-only: a failure with its reason, no traceback
+        conn.send({"status": "failed", "reason": f"cannot write the job's log ({describe_os_error(error)})"})
+        conn.close()
+        return
     os.dup2(log, 1)
     os.dup2(log, 2)
     try:
@@ -72,6 +113,9 @@ def job_process_body(job, parent: dict | None, log_path: str, chk_path: str | No
                              guess=parent.get("chkfile") if parent else None)
         with limited_threads(threads):
             result = run_task(job.task, job.spec, parent, context)
+    except MemoryError:
+        result = {"status": "failed", "reason": "MemoryError: the job ran out of memory; give it more, or run fewer "
+                                                "--workers side by side"}
     except Exception as error:  # a failed job is a result; the driver records it
         first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
         result = {"status": "failed", "reason": f"{type(error).__name__}: {first}"}
