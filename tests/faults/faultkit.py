@@ -115,6 +115,70 @@ def start(*args, extra_env=None, **kwargs) -> subprocess.Popen:
                             **kwargs)
 
 
+class Watched:
+    """A command started with ``start``, watched while it runs: its stderr lines as they come and every
+    process that ever ran under it (the fork server, the job processes)."""
+
+    def __init__(self, *args, extra_env=None):
+        import threading
+
+        self.process = start(*args, extra_env=extra_env)
+        self.started = time.monotonic()
+        self.stderr_lines: list[str] = []
+        self.seen: dict = {}
+        self._readers = [threading.Thread(target=self._read, daemon=True),
+                         threading.Thread(target=self._watch, daemon=True)]
+        for thread in self._readers:
+            thread.start()
+
+    def _read(self) -> None:
+        for line in self.process.stderr:
+            self.stderr_lines.append(line)
+
+    def _watch(self) -> None:
+        while self.process.poll() is None:
+            for child in descendants(self.process.pid):
+                self.seen.setdefault(child.pid, child)
+            time.sleep(0.02)
+
+    def said(self, text: str) -> bool:
+        return any(text in line for line in self.stderr_lines)
+
+    def handlers_installed(self) -> bool:
+        """Whether the command catches SIGTERM and SIGHUP yet (/proc/PID/status, SigCgt: a bit per signal)."""
+        try:
+            with open(f"/proc/{self.process.pid}/status", encoding="ascii") as status:
+                caught = int(next(line.split()[1] for line in status if line.startswith("SigCgt:")), 16)
+        except (OSError, StopIteration):
+            return False
+        return all(caught >> (number - 1) & 1 for number in (signal.SIGTERM, signal.SIGHUP))
+
+    def signal_group(self, number: int) -> None:
+        """``number`` to the command's whole process group, as a terminal sends Ctrl-C or a hang-up."""
+        self.signalled = time.monotonic()
+        os.killpg(self.process.pid, number)
+
+    def finish(self, timeout_s: float = 300) -> tuple[str, str]:
+        """Wait for the end; returns (stdout, stderr) and notes how long it took after the signal."""
+        out = self.process.stdout.read()
+        self.process.wait(timeout=timeout_s)
+        for thread in self._readers:
+            thread.join(timeout=10)
+        if hasattr(self, "signalled"):
+            note("stop_seconds", round(time.monotonic() - self.signalled, 3))
+        return out, "".join(self.stderr_lines)
+
+    def left_alive(self) -> list:
+        """Processes that ran under the command and still live, once the stragglers had time to die."""
+        deadline = time.monotonic() + 30
+        while alive(self.seen.values()) and time.monotonic() < deadline:
+            time.sleep(0.1)
+        survivors = alive(self.seen.values())
+        for process in survivors:  # do not leave them to the next test
+            process.kill()
+        return survivors
+
+
 def wait_until(condition, timeout_s: float, what: str, process: subprocess.Popen | None = None) -> None:
     deadline = time.monotonic() + timeout_s
     while time.monotonic() < deadline:
@@ -138,7 +202,16 @@ def descendants(pid: int) -> list:
 
 
 def alive(processes) -> list:
-    return [p for p in processes if p.is_running() and p.status() != "zombie"]
+    import psutil
+
+    found = []
+    for process in processes:
+        try:
+            if process.is_running() and process.status() != psutil.STATUS_ZOMBIE:
+                found.append(process)
+        except psutil.NoSuchProcess:
+            pass
+    return found
 
 
 def kill_group(process: subprocess.Popen) -> None:

@@ -199,8 +199,9 @@ class LocalPool:
 
     def submit(self, job: Job, parent: dict | None) -> None:
         if not self._server_started:
-            from multiprocessing import forkserver
+            from multiprocessing import forkserver, resource_tracker
 
+            resource_tracker.ensure_running()  # first: starting it unblocks SIGINT and SIGTERM in this process
             with blocked():  # the server starts with the stop signals blocked: they are the driver's (stopping.py)
                 forkserver.ensure_running()
             self._server_started = True
