@@ -98,7 +98,7 @@ def run_on_worker(job, parent, log_path, chk_path, threads: int, timeout_s: floa
         result = {"status": "failed", "reason": f"timeout after {timeout_s:.0f} s"}
     reader.close()
     process.wait()
-    return result if result is not None else {"status": "failed", "reason": exit_reason(process.returncode)}
+    return result if result is not None else {"status": "failed", "reason": exit_reason(process.returncode, log_path)}
 
 
 # ------------------------------------------------------------------------------------------ driver side

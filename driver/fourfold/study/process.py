@@ -20,9 +20,9 @@ from ..errors import describe_os_error
 
 # Test hook: FOURFOLD_FAULT="raise:TEXT" / "exit:TEXT" / "hang:TEXT" / "memory:TEXT" makes the job whose label
 # contains TEXT raise, end its process abruptly, hang, or run with almost no memory left (its address space
-# capped 64 MiB above what it has mapped at the start), so the reliability tests exercise real processes.
+# capped 1 MiB above what it has mapped at the start), so the reliability tests exercise real processes.
 FAULT_ENV = "FOURFOLD_FAULT"
-_FAULT_MEMORY_BYTES = 64 * 2**20
+_FAULT_MEMORY_BYTES = 2**20
 
 
 def _inject_fault(label: str) -> None:
@@ -123,15 +123,35 @@ def job_process_body(job, parent: dict | None, log_path: str, chk_path: str | No
     conn.close()
 
 
-def exit_reason(exitcode: int | None) -> str:
-    """Why a job process ended without a result, from its exit status."""
+def exit_reason(exitcode: int | None, log_path: str | None = None) -> str:
+    """Why a job process ended without a result, from its exit status, with the last line its log holds (a
+    library that gives up, e.g. on memory, says why there before it ends the process)."""
     if exitcode is None:
-        return "worker vanished"
-    if exitcode < 0:
+        reason = "worker vanished"
+    elif exitcode < 0:
         name = signal.Signals(-exitcode).name
         hint = {"SIGKILL": " (killed: out of memory or by hand)", "SIGSEGV": " (segmentation fault)"}.get(name, "")
-        return f"worker died from {name}{hint}"
-    return f"worker exited with status {exitcode} before returning a result"
+        reason = f"worker died from {name}{hint}"
+    else:
+        reason = f"worker exited with status {exitcode} before returning a result"
+    last = _last_log_line(log_path) if log_path else ""
+    return f"{reason}; its log ends: {last}" if last else reason
+
+
+def _last_log_line(log_path: str, limit: int = 200) -> str:
+    """The last line of a job's log that is not its header, without terminal colour codes, shortened."""
+    import re
+
+    try:
+        with open(log_path, "rb") as log:
+            log.seek(max(0, os.fstat(log.fileno()).st_size - 4096))
+            tail = log.read().decode("utf-8", "replace")
+    except OSError:
+        return ""
+    lines = [re.sub(r"\x1b\[[0-9;]*m", "", line).strip() for line in tail.splitlines()]
+    lines = [line for line in lines if line and not line.startswith("# ")]
+    text = lines[-1] if lines else ""
+    return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
 def failed_result(job, reason: str, parent: dict | None) -> dict:

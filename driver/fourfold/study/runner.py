@@ -234,7 +234,8 @@ class LocalPool:
                 result = {"status": "failed", "reason": f"timeout after {self.timeout_s:.0f} s"}
             item.process.join(timeout=5)
             if result is None:
-                result = {"status": "failed", "reason": exit_reason(item.process.exitcode)}
+                log_path = job_paths(self.out_dir, item.job)[0]
+                result = {"status": "failed", "reason": exit_reason(item.process.exitcode, log_path)}
             item.conn.close()
             self._running.remove(item)
             ended.append((item.job, complete_failure(item.job, result, item.parent)))

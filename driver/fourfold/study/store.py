@@ -20,7 +20,7 @@ import re
 import shlex
 import sqlite3
 import time
-from contextlib import closing
+from contextlib import closing, contextmanager
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -94,6 +94,26 @@ def sqlite_problem(path: Path) -> str | None:
     except sqlite3.DatabaseError as error:
         return _first_line(error)
     return None if check == "ok" else check
+
+
+@contextmanager
+def sqlite_trouble(location: str, folder: Path):
+    """SQLite errors inside the block become one-line StoreErrors that say what to do."""
+    try:
+        yield
+    except sqlite3.OperationalError as error:
+        reason = _first_line(error)
+        if "full" in reason:
+            hint = "free some space, then rerun the same command"
+        elif "readonly" in reason or "unable to open" in reason:
+            hint = "the study folder must be writable: fix its permissions or copy it somewhere writable"
+        else:
+            hint = f"if this persists, rebuild the store with {rebuild_hint(folder)}"
+        raise StoreError(f"cannot use {location} ({reason}); {hint}; finished jobs are kept in "
+                         f"{folder / 'records'}") from None
+    except (sqlite3.DatabaseError, json.JSONDecodeError, UnicodeDecodeError) as error:  # or a row's data is garbled
+        raise StoreError(f"{location} is damaged ({_first_line(error)}); rebuild it from the finished "
+                         f"jobs' records with {rebuild_hint(folder)}") from None
 
 
 def _retry_pauses() -> tuple[float, ...]:
@@ -177,21 +197,8 @@ class ResultStore:
         """Call ``function``; SQLite trouble becomes a one-line StoreError, a lost PostgreSQL server is retried."""
         if self._url:
             return self._retried(function, *args)
-        try:
+        with sqlite_trouble(self.location, self._folder):
             return function(*args)
-        except sqlite3.OperationalError as error:
-            reason = _first_line(error)
-            if "full" in reason:
-                hint = "free some space, then rerun the same command"
-            elif "readonly" in reason or "unable to open" in reason:
-                hint = "the study folder must be writable: fix its permissions or copy it somewhere writable"
-            else:
-                hint = f"if this persists, rebuild the store with {rebuild_hint(self._folder)}"
-            raise StoreError(f"cannot use {self.location} ({reason}); {hint}; finished jobs are kept in "
-                             f"{self._folder / 'records'}") from None
-        except (sqlite3.DatabaseError, json.JSONDecodeError, UnicodeDecodeError) as error:  # or a row's data is garbled
-            raise StoreError(f"{self.location} is damaged ({_first_line(error)}); rebuild it from the finished "
-                             f"jobs' records with {rebuild_hint(self._folder)}") from None
 
     def _retried(self, function, *args):
         import psycopg2
@@ -356,7 +363,8 @@ def rebuild_sqlite(folder) -> Rebuilt:
     partial = folder / f".results.db.{os.getpid()}.rebuild"
     partial.unlink(missing_ok=True)
     try:
-        _created_sqlite(partial)
+        with sqlite_trouble(str(path), folder):
+            _created_sqlite(partial)
         store = ResultStore(partial)
         for record in records:
             store.record(record.job, record.result)
