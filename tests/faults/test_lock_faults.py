@@ -14,7 +14,7 @@ import subprocess
 import sys
 
 import pytest
-from faultkit import ZINC_JOBS, check_clean, check_kept, command, fault, fourfold, one_line, start, stored
+from faultkit import ZINC_JOBS, check_clean, check_kept, command, fault, one_line, start, stored
 
 HOLD = ("import sys, time; from fourfold.study.runner import RunLock\n"
         "with RunLock(sys.argv[1]):\n    print('held', flush=True)\n    time.sleep(600)\n")
