@@ -153,7 +153,8 @@ def test_out_of_memory_and_out_of_time_are_recorded_failures(tmp_path):
     fault("a job out of memory (address space capped)")
     fault("a job over its time limit")
     result = fourfold("run", recipe_file(tmp_path), "--out", folder, "--quiet", "--timeout", "4",
-                      what="out of memory and out of time", extra_env={"FOURFOLD_FAULT": f"memory:{ZINC_T4},hang:{ZINC_SP4}"})
+                      what="out of memory and out of time",
+                      extra_env={"FOURFOLD_FAULT": f"memory:{ZINC_T4},hang:{ZINC_SP4}"})
     assert result.returncode == 0, result.stderr
     status = json.loads(command("status", folder, "--json", what="status after oom and timeout").stdout)
     reasons = {f["label"].split()[1]: f["reason"] for f in status["failures"]}
