@@ -6,18 +6,27 @@ The bundled set lives in ``data/ligands.toml``; a recipe can add ligands of its 
 
 from __future__ import annotations
 
+import math
+import re
 from dataclasses import dataclass, field, replace
 from functools import cache
 
 import numpy as np
 
 from ..data import load_table
-from ..errors import InputError
+from ..errors import InputError, shown
 from .metals import Sourced
 
 # Ligand-field defaults for a custom ligand whose recipe gives none: the middle of the spectrochemical
 # series (water-like) [common practice, no source]; the estimate labels them.
 _CUSTOM_DEFAULTS = {"f": 1.0, "pi_ratio": 0.0, "h": 1.5, "repulsion_cm": None}
+# What a custom ligand may be (fourfold defaults). A name is written in formulas and file names: letters,
+# digits and '_'. Atoms closer than 0.5 Å are one atom typed twice: the shortest bond, H–H, is 0.74 Å
+# (common practice, no source). A ligand of more than 200 atoms is no ligand fourfold can compute in time.
+_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,23}$")
+_CLOSEST_ANGSTROM = 0.5
+_MOST_ATOMS = 200
+_DISTANCE_RANGE_ANGSTROM = (1.0, 4.0)  # M–L start distances: 1.7–2.7 Å in practice (common practice, no source)
 
 
 @dataclass(frozen=True)
@@ -116,7 +125,11 @@ def custom_ligand(name: str, xyz: str, donor_index: int, charge: int, **paramete
     The fragment is moved so the donor sits at the origin and turned so that its centroid lies on +z
     (away from the metal). ``parameters`` may set f, pi_ratio, h, repulsion_cm, label, distance_angstrom.
     """
+    if not isinstance(name, str) or not _NAME.match(name):
+        raise InputError(f"ligand name {shown(name)}: use letters, digits and '_' (up to 24, a letter first), e.g. "
+                         "MeCN; the name is written in formulas")
     symbols, positions = _parse_xyz(name, xyz)
+    _check_atoms(name, positions)
     if not 0 <= donor_index < len(symbols):
         raise InputError(f"ligand '{name}': donor_index {donor_index} is outside the fragment's {len(symbols)} atoms (0-based)")
     for symbol in symbols:
@@ -128,6 +141,18 @@ def custom_ligand(name: str, xyz: str, donor_index: int, charge: int, **paramete
     unknown = set(parameters) - {"f", "pi_ratio", "h", "repulsion_cm", "label", "distance_angstrom"}
     if unknown:
         raise InputError(f"ligand '{name}': unknown keys {sorted(unknown)}; use f, pi_ratio, h, repulsion_cm, label, distance_angstrom")
+    for key in ("f", "pi_ratio", "h", "repulsion_cm", "distance_angstrom"):
+        value = parameters.get(key, 0.0)
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            raise InputError(f"ligand '{name}': {key} must be a finite number, got {shown(value)}")
+    distance = parameters.get("distance_angstrom")
+    if distance is not None and not _DISTANCE_RANGE_ANGSTROM[0] <= distance <= _DISTANCE_RANGE_ANGSTROM[1]:
+        low, high = _DISTANCE_RANGE_ANGSTROM
+        raise InputError(f"ligand '{name}': distance_angstrom {distance} is no metal–donor distance: "
+                         f"give {low}–{high} Å")
+    label = parameters.get("label", name)
+    if not isinstance(label, str) or not label.isprintable():
+        raise InputError(f"ligand '{name}': label must be one line of printable text, got {shown(label)}")
     values = {}
     for key, default in _CUSTOM_DEFAULTS.items():
         if key in parameters:
@@ -138,7 +163,7 @@ def custom_ligand(name: str, xyz: str, donor_index: int, charge: int, **paramete
             values[key] = Sourced(default, "fourfold default for custom ligands: mid-series (water-like)")
     return Ligand(
         name=name,
-        label=str(parameters.get("label", name)),
+        label=label,
         charge=int(charge),
         symbols=symbols,
         positions_angstrom=positions,
@@ -173,6 +198,19 @@ def _parse_xyz(name: str, xyz: str) -> tuple[list[str], np.ndarray]:
     if not symbols:
         raise InputError(f"ligand '{name}': the XYZ fragment has no atoms")
     return symbols, np.array(rows)
+
+
+def _check_atoms(name: str, positions: np.ndarray) -> None:
+    if len(positions) > _MOST_ATOMS:
+        raise InputError(f"ligand '{name}': {len(positions)} atoms; a custom ligand has at most {_MOST_ATOMS}")
+    if not np.isfinite(positions).all():
+        raise InputError(f"ligand '{name}': a coordinate is not a finite number (nan or inf); give Å as numbers")
+    gaps = np.linalg.norm(positions[:, None, :] - positions[None, :, :], axis=-1)
+    gaps[np.diag_indices(len(positions))] = np.inf
+    first, second = np.unravel_index(np.argmin(gaps), gaps.shape)
+    if gaps[first, second] < _CLOSEST_ANGSTROM:
+        raise InputError(f"ligand '{name}': atoms {min(first, second)} and {max(first, second)} are "
+                         f"{gaps[first, second]:.2f} Å apart (closer than {_CLOSEST_ANGSTROM} Å): an atom typed twice?")
 
 
 def _rotation_to_z(positions: np.ndarray) -> np.ndarray:

@@ -191,12 +191,11 @@ def _distributed():
 
 def load_cluster_file(path) -> dict:
     """The [cluster] table of a separate TOML file (--cluster-config), validated as a recipe's is."""
-    from .recipe import cluster_settings
+    from .recipe import cluster_settings, read_toml_text
 
+    text = read_toml_text(Path(path), "cluster file")
     try:
-        data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError) as error:
-        raise InputError(f"{path}: cannot read it ({_first_line(error)}); give a UTF-8 TOML file") from None
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise InputError(f"{path}: not valid TOML ({error}); check quotes, brackets and '=' signs") from None
     unknown = sorted(set(data) - {"cluster"})
