@@ -201,3 +201,33 @@ def test_the_password_appears_in_no_output_file_or_log(database, tmp_path):
     assert any("versions.json" == p.name for p in folder.iterdir())
     leaks = [t[:200] for t in texts if PASSWORD in t or "x@" + host in t]  # nor the part after an unescaped '@'
     assert not leaks, leaks
+
+
+@pytest.mark.slow
+def test_a_stop_while_the_server_is_away_ends_the_retries(database, tmp_path):
+    """Ctrl-C while the store waits for the server: the retries end at once, the results stay in records/."""
+    import signal
+
+    from faultkit import Watched
+
+    host, port, name, user = database
+    relay = Relay(host, port)
+    folder, recipe = tmp_path / "pg", recipe_file(tmp_path)
+    run = Watched("run", recipe, "--out", folder, "--quiet", "--store", _url(user, "127.0.0.1", relay.port, name))
+    try:
+        wait_until(lambda: _running(folder), 300, "jobs running", run.process)
+        relay.cut()
+        wait_until(lambda: _records(folder), 300, "a job kept on disk while the server is away", run.process)
+        run.signal_group(signal.SIGINT)
+        fault("Ctrl-C while the PostgreSQL store is retried")
+        out, err = run.finish()
+    finally:
+        relay.cut()
+        run.left_alive()
+    assert "Traceback" not in out + err
+    assert run.process.returncode == 130 and "stopped by SIGINT" in err, err
+    finished = _records(folder)
+    direct = _url(user, host, port, name)
+    rerun = fourfold("run", recipe, "--out", folder, "--quiet", "--store", direct, what="run after a stopped retry")
+    assert rerun.returncode == 0, rerun.stderr
+    check_kept(finished, _rows(direct), "a stop during the store's retries")

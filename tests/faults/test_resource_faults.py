@@ -102,6 +102,7 @@ def test_a_disk_that_fills_in_the_report_keeps_every_result(small_disk, tmp_path
     assert not _leftovers(folder)
 
 
+@pytest.mark.slow
 def test_a_disk_that_fills_mid_run_keeps_what_finished_and_resumes(small_disk, tmp_path):
     disk = small_disk(4096)
     folder, recipe = disk / "study", recipe_file(tmp_path)

@@ -90,6 +90,7 @@ def test_a_signal_stops_every_phase_cleanly(zinc_done, tmp_path, phase, name):
         assert not rows  # no job had started
 
 
+@pytest.mark.slow
 def test_a_run_stopped_mid_job_resumes_and_finishes(tmp_path):
     folder, recipe = tmp_path / "study", recipe_file(tmp_path)
     run = Watched("run", recipe, "--out", folder, "--quiet", extra_env={"FOURFOLD_FAULT": f"hang:{ZINC_SP4}"})
@@ -110,7 +111,9 @@ def test_a_run_stopped_mid_job_resumes_and_finishes(tmp_path):
 
 
 def test_a_driver_started_with_sigint_ignored_still_stops_on_it(tmp_path):
-    """A shell starts background jobs with SIGINT ignored; fourfold still honours an explicit SIGINT."""
+    """A shell starts a script's background jobs (`fourfold run … &`) with SIGINT ignored, and Python keeps it
+    ignored (POSIX, Shell Command Language, "Asynchronous Lists"; from memory): such a run used to finish
+    through a Ctrl-C or `kill -INT`. fourfold installs its own handler whatever it inherited."""
     import subprocess
     import sys
 

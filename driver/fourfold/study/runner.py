@@ -88,7 +88,11 @@ class RunLock:
         path = Path(folder) / "run.lock"
         if not path.exists() or Path(folder).resolve() in RunLock._held:
             return False
-        with open(path) as handle:
+        try:
+            handle = open(path)
+        except OSError:  # unreadable, or not a file: no run of ours holds it
+            return False
+        with handle:
             try:
                 fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
             except BlockingIOError:
@@ -143,7 +147,7 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
         shelf = RecordShelf(out_dir)
         jobs = expand(study)
         stored = store.status()
-        restored = store_records(store, shelf, stored)
+        restored = store_records(store, shelf, stored, {j.key for j in jobs})
         if retry_failed:
             again = [j.key for j in jobs if stored.get(j.key) == "failed"]
             shelf.remove(again)
@@ -334,12 +338,13 @@ def _drive(pending, stored, store, shelf, pool, summary, progress, running_file)
             running_file.update(pool.running_labels())
             if progress:
                 progress(summary, pool.running_labels())
-            for job, result in pool.collect(_POLL_S):
-                summary.ran += 1
-                summary.job_seconds += float(result.get("wall_seconds") or 0.0)
-                _finish(job, result, store, shelf, stored, summary)
-                if progress:
-                    progress(summary, pool.running_labels())
+            with deferred():  # a result received is kept before a stop takes effect (at most _POLL_S later)
+                for job, result in pool.collect(_POLL_S):
+                    summary.ran += 1
+                    summary.job_seconds += float(result.get("wall_seconds") or 0.0)
+                    _finish(job, result, store, shelf, stored, summary)
+                    if progress:
+                        progress(summary, pool.running_labels())
     finally:
         pool.close()
         running_file.close()

@@ -74,6 +74,11 @@ def deferred():
             raise Stopped(pending)
 
 
+def stop_pending() -> bool:
+    """Whether a stop waits for the end of a ``deferred`` block (a long wait inside it should end early)."""
+    return _state["pending"] is not None
+
+
 @contextmanager
 def blocked():
     """Hold the stop signals back (they stay pending and arrive when the block ends). A process started

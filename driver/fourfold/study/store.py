@@ -116,6 +116,19 @@ def sqlite_trouble(location: str, folder: Path):
                          f"jobs' records with {rebuild_hint(folder)}") from None
 
 
+def _paused(seconds: float) -> bool:
+    """Wait ``seconds``, or less if the command is asked to stop meanwhile (then False: give up the retries,
+    the record on disk keeps the result)."""
+    from .stopping import stop_pending
+
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        if stop_pending():
+            return False
+        time.sleep(min(0.1, max(0.0, deadline - time.monotonic())))
+    return not stop_pending()
+
+
 def _retry_pauses() -> tuple[float, ...]:
     text = os.environ.get(RETRY_ENV)
     return tuple(float(x) for x in text.split(",")) if text else RETRY_PAUSES_S
@@ -176,6 +189,8 @@ class ResultStore:
         path = Path(text)
         self.location = text
         self._folder = path.parent
+        if path.exists() and not os.access(path, os.R_OK):
+            raise StoreError(f"cannot read {path} (permission denied): run as its owner or fix its permissions")
         if not path.exists():
             if RecordShelf(path.parent).keys():  # it held results once: made anew, they would all run again
                 raise StoreError(f"{path} is missing; rebuild it from the finished jobs' records with "
@@ -208,12 +223,12 @@ class ResultStore:
             try:
                 return function(*args)
             except (psycopg2.OperationalError, psycopg2.InterfaceError) as error:
-                if pause is None:
+                if pause is None or not _paused(pause):
                     raise StoreError(f"lost the PostgreSQL store {self.location} "
-                                     f"({scrubbed(_first_line(error), self._url)}) and could not reconnect within "
-                                     f"{sum(pauses):.0f} s; finished jobs are kept in the study folder's records/ and "
-                                     "stored by the next run: rerun the same command when the server is back") from None
-                time.sleep(pause)
+                                     f"({scrubbed(_first_line(error), self._url)}) and could not reconnect "
+                                     f"({len(pauses)} tries over {sum(pauses):.0f} s); finished jobs are kept in the "
+                                     "study folder's records/ and stored by the next run: rerun the same command "
+                                     "when the server is back") from None
 
     # -------------------------------------------------------------------------------- reading
 
@@ -297,18 +312,20 @@ def _row_record(row) -> Record:
     return Record(job, result)
 
 
-def store_records(store: ResultStore, shelf: RecordShelf, stored: dict[str, str]) -> int:
+def store_records(store: ResultStore, shelf: RecordShelf, stored: dict[str, str], study_keys=frozenset()) -> int:
     """Bring store and records level: rows for records the store lacks (a driver stopped between the two
-    writes, a PostgreSQL server that went away), records for rows that have none (folders from before records
-    existed). ``stored`` (key -> status) is updated; returns the number of rows added."""
+    writes, a PostgreSQL server that went away), and records for the rows of ``study_keys`` that have none
+    (folders from before records existed; a PostgreSQL store may hold other studies' rows too). ``stored``
+    (key -> status) is updated; returns the number of rows added."""
     on_shelf = shelf.keys()
-    missing_rows = on_shelf - set(stored)
-    records, _ = shelf.read(missing_rows)
+    records, _ = shelf.read(on_shelf - set(stored))
     for record in records:
         store.record(record.job, record.result)
         stored[record.job.key] = record.result["status"]
-    for record in store.records(set(stored) - on_shelf):
-        shelf.write(record.job, record.result)
+    unrecorded = (set(stored) & set(study_keys)) - on_shelf
+    if unrecorded:
+        for record in store.records(unrecorded):
+            shelf.write(record.job, record.result)
     return len(records)
 
 
