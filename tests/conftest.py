@@ -8,6 +8,9 @@ import sys
 
 import pytest
 
+# The fault catalogue's shared fixtures (a finished study folder to break): tests/faults/faultkit.py.
+pytest_plugins = ["faults.faultkit"]
+
 
 def run_fourfold(*args, env=None, **kwargs) -> subprocess.CompletedProcess:
     """`fourfold ARGS…` in a subprocess of this interpreter, one BLAS/OpenMP thread unless ``env`` says

@@ -16,8 +16,15 @@ class _Group(click.Group):
     """Turns fourfold's own errors and click's usage errors into one line on stderr and exit status 2."""
 
     def main(self, args=None, prog_name=None, **extra):
+        from .study.stopping import Stopped, install_handlers
+
+        install_handlers()  # first thing: SIGINT, SIGTERM and SIGHUP stop every phase the same way
         try:
             code = super().main(args=args, prog_name=prog_name, standalone_mode=False, **extra)
+        except Stopped as stop:
+            click.echo(f"stopped by {stop.signal_name}" + (f"; {stop.hint}" if stop.hint else " before anything "
+                       "was written"), err=True)
+            sys.exit(stop.exit_status)
         except click.UsageError as error:
             where = f" (see '{error.ctx.command_path} --help')" if error.ctx else ""
             click.echo(f"error: {error.format_message()}{where}", err=True)
@@ -294,6 +301,19 @@ def report(folder, unit, formats, temperature_k, figure_style, ladder_energy, st
                             temperature_k=temperature_k, figure_style=figure_style, ladder_energy=ladder_energy)
     _print_cautions(e.complex for e in load_folder_study(folder).complexes)
     click.echo(report_text(written), nl=False)
+
+
+@main.command()
+@click.argument("folder", type=click.Path(file_okay=False, exists=True))
+@_STORE_OPTION
+def rebuild(folder, store_url):
+    """Make the store of a study FOLDER again from the records its finished jobs left in FOLDER/records.
+
+    A damaged results.db is kept aside (renamed), never deleted. With --store, the PostgreSQL store gets the
+    results it lacks."""
+    from .pipeline import rebuild_store
+
+    click.echo(rebuild_store(folder, store_url))
 
 
 @main.command()

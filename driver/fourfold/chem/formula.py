@@ -12,12 +12,14 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-from ..errors import InputError
+from ..errors import InputError, shown
 from .ligands import unknown_ligand_error
 
 _ROMAN = {"0": 0, "I": 1, "II": 2, "III": 3, "IV": 4, "V": 5, "VI": 6, "VII": 7, "VIII": 8,
           "-I": -1, "-II": -2}
 _CHARGE = re.compile(r"\^?(\d*)([+-])$")
+_LONGEST = 200  # characters; the longest formula of the bundled ligands is under 40
+_MOST_OF_ONE_LIGAND = 12  # a count beyond any complex: refused before a list of that many ligands is made
 _METAL = re.compile(r"([A-Z][a-z]?)(?:\((0|-?I{1,3}|-?IV|VI{0,3})\))?")
 
 
@@ -33,6 +35,8 @@ def parse_formula(text: str, ligand_names: dict[str, str]) -> ParsedFormula:
     """Split a formula into metal, ligand tokens and charge; ``ligand_names`` maps every accepted alias to
     its ligand's canonical name (used to list the known ligands in errors)."""
     original = text
+    if len(text) > _LONGEST:
+        raise InputError(f"formula {shown(text)} is {len(text)} characters long: write one complex, e.g. [NiCl4]2-")
     text = text.strip().replace(" ", "").replace("−", "-").replace("⁻", "-").replace("⁺", "+")
     text = text.translate(str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹", "0123456789"))
     if not text:
@@ -40,13 +44,15 @@ def parse_formula(text: str, ligand_names: dict[str, str]) -> ParsedFormula:
     charge, text = _split_charge(original, text)
     if text.startswith("["):
         if not text.endswith("]"):
-            raise InputError(f"malformed formula '{original}': a '[' without its closing ']' before the charge")
+            raise InputError(f"malformed formula {shown(original)}: a '[' without its closing ']' before the charge")
         text = text[1:-1]
     elif "[" in text or "]" in text:
-        raise InputError(f"malformed formula '{original}': brackets must enclose the whole complex, e.g. [NiCl4]2-")
+        raise InputError(f"malformed formula {shown(original)}: brackets must enclose the whole complex, "
+                         "e.g. [NiCl4]2-")
     match = _METAL.match(text)
     if not match:
-        raise InputError(f"malformed formula '{original}': it must start with the metal's element symbol, e.g. [NiCl4]2-")
+        raise InputError(f"malformed formula {shown(original)}: it must start with the metal's element symbol, "
+                         "e.g. [NiCl4]2-")
     metal, roman = match.group(1), match.group(2)
     ligands = _split_ligands(original, text[match.end():], ligand_names)
     return ParsedFormula(metal, tuple(ligands), charge, _ROMAN[roman] if roman else None)
@@ -67,7 +73,8 @@ def _split_charge(original: str, text: str) -> tuple[int, str]:
     body = text[: match.start()]
     if not body.endswith("]") and match.group(1):
         # 'Ni(CO)4' has no charge; '...Cl42-' without brackets is ambiguous: ask for brackets.
-        raise InputError(f"ambiguous formula '{original}': put the complex in brackets before its charge, e.g. [NiCl4]2-")
+        raise InputError(f"ambiguous formula {shown(original)}: put the complex in brackets before its charge, "
+                         "e.g. [NiCl4]2-")
     magnitude = int(match.group(1) or 1)
     return (magnitude if match.group(2) == "+" else -magnitude), body
 
@@ -80,7 +87,7 @@ def _split_ligands(original: str, rest: str, known: dict[str, str]) -> list[str]
         if rest[position] == "(":
             end = _closing_parenthesis(rest, position)
             if end < 0:
-                raise InputError(f"malformed formula '{original}': '(' without ')'")
+                raise InputError(f"malformed formula {shown(original)}: '(' without ')'")
             token = rest[position + 1 : end]
             if token not in names:
                 raise unknown_ligand_error(token, known)
@@ -93,11 +100,11 @@ def _split_ligands(original: str, rest: str, known: dict[str, str]) -> list[str]
         count_match = re.match(r"\d+", rest[position:])
         count = int(count_match.group(0)) if count_match else 1
         position += count_match.end() if count_match else 0
-        if count == 0:
-            raise InputError(f"malformed formula '{original}': ligand count 0 for {token}")
+        if count == 0 or count > _MOST_OF_ONE_LIGAND:
+            raise InputError(f"malformed formula {shown(original)}: ligand count {count} for {token}")
         ligands.extend([token] * count)
     if not ligands:
-        raise InputError(f"malformed formula '{original}': no ligands after the metal")
+        raise InputError(f"malformed formula {shown(original)}: no ligands after the metal")
     return ligands
 
 
@@ -107,7 +114,7 @@ def _word_at(text: str, position: int) -> str:
     start = position
     while start > 0 and not text[start].isupper() and text[start - 1].isalpha():
         start -= 1
-    found = re.match(r"[A-Z]?[a-z]+|.", text[start:])
+    found = re.match(r"[A-Z]?[a-z]+|.", text[start:], re.DOTALL)
     return found.group(0)
 
 

@@ -14,13 +14,15 @@ Fragment frames (``positions_angstrom``; the first ``denticity`` atoms are the d
 from __future__ import annotations
 
 import difflib
+import math
+import re
 from dataclasses import dataclass, field, replace
 from functools import cache
 
 import numpy as np
 
 from ..data import load_table
-from ..errors import InputError
+from ..errors import InputError, shown
 from .metals import Sourced
 
 # Ligand-field defaults for a custom ligand whose recipe gives none: the middle of the spectrochemical
@@ -30,6 +32,13 @@ CUSTOM_SOURCE = "fourfold default for custom ligands: mid-series (water-like)"
 _PARAMETER_KEYS = ("f", "pi_ratio", "h")
 _CUSTOM_KEYS = {*_PARAMETER_KEYS, "label", "distance_angstrom"}
 MAX_DENTICITY = 2
+# What a custom ligand may be (fourfold defaults). A name is written in formulas and file names: letters,
+# digits and '_'. Atoms closer than 0.5 Å are one atom typed twice: the shortest bond, H–H, is 0.74 Å
+# (common practice, no source). A ligand of more than 200 atoms is no ligand fourfold can compute in time.
+_NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]{0,23}$")
+_CLOSEST_ANGSTROM = 0.5
+_MOST_ATOMS = 200
+_DISTANCE_RANGE_ANGSTROM = (1.0, 4.0)  # M–L start distances: 1.7–2.7 Å in practice (common practice, no source)
 
 
 @dataclass(frozen=True)
@@ -159,7 +168,7 @@ def unknown_ligand_error(token: str, names) -> InputError:
     by_lower = {n.lower(): n for n in names}
     close = [by_lower[n] for n in difflib.get_close_matches(token.lower(), list(by_lower), n=4, cutoff=0.5)]
     hint = f"closest: {', '.join(close)}" if close else "`fourfold ligands` lists them"
-    return InputError(f"unknown ligand '{token}' ({hint}); define others in a recipe's [ligands] table")
+    return InputError(f"unknown ligand {shown(token)} ({hint}); define others in a recipe's [ligands] table")
 
 
 def get_ligand(name: str, extra: dict[str, Ligand] | None = None) -> Ligand:
@@ -177,7 +186,11 @@ def custom_ligand(name: str, xyz: str, donor_index, charge: int, **parameters) -
     backbone (the centroid of its other atoms) onto +x. ``parameters`` may set f, pi_ratio, h, label,
     distance_angstrom.
     """
+    if not isinstance(name, str) or not _NAME.match(name):
+        raise InputError(f"ligand name {shown(name)}: use letters, digits and '_' (up to 24, a letter first), e.g. "
+                         "MeCN; the name is written in formulas")
     symbols, positions = _parse_xyz(name, xyz)
+    _check_atoms(name, positions)
     donors = [donor_index] if isinstance(donor_index, int) else list(donor_index)
     if not 1 <= len(donors) <= MAX_DENTICITY or len(set(donors)) != len(donors):
         raise InputError(f"ligand '{name}': give one donor index, or two different ones for a chelate, got {donor_index}")
@@ -189,6 +202,7 @@ def custom_ligand(name: str, xyz: str, donor_index, charge: int, **parameters) -
     unknown = set(parameters) - _CUSTOM_KEYS
     if unknown:
         raise InputError(f"ligand '{name}': unknown keys {sorted(unknown)}; use {', '.join(sorted(_CUSTOM_KEYS))}")
+    _check_parameters(name, parameters)
     order = donors + [i for i in range(len(symbols)) if i not in donors]
     symbols = tuple(symbols[i] for i in order)
     positions = positions[order]
@@ -197,7 +211,7 @@ def custom_ligand(name: str, xyz: str, donor_index, charge: int, **parameters) -
               for key, default in _CUSTOM_DEFAULTS.items()}
     return Ligand(
         name=name,
-        label=str(parameters.get("label", name)),
+        label=parameters.get("label", name),
         charge=int(charge),
         symbols=symbols,
         positions_angstrom=positions,
@@ -232,6 +246,33 @@ def _parse_xyz(name: str, xyz: str) -> tuple[list[str], np.ndarray]:
     if not symbols:
         raise InputError(f"ligand '{name}': the XYZ fragment has no atoms")
     return symbols, np.array(rows)
+
+
+def _check_atoms(name: str, positions: np.ndarray) -> None:
+    if len(positions) > _MOST_ATOMS:
+        raise InputError(f"ligand '{name}': {len(positions)} atoms; a custom ligand has at most {_MOST_ATOMS}")
+    if not np.isfinite(positions).all():
+        raise InputError(f"ligand '{name}': a coordinate is not a finite number (nan or inf); give Å as numbers")
+    gaps = np.linalg.norm(positions[:, None, :] - positions[None, :, :], axis=-1)
+    gaps[np.diag_indices(len(positions))] = np.inf
+    first, second = np.unravel_index(np.argmin(gaps), gaps.shape)
+    if gaps[first, second] < _CLOSEST_ANGSTROM:
+        raise InputError(f"ligand '{name}': atoms {min(first, second)} and {max(first, second)} are "
+                         f"{gaps[first, second]:.2f} Å apart (closer than {_CLOSEST_ANGSTROM} Å): an atom typed twice?")
+
+
+def _check_parameters(name: str, parameters: dict) -> None:
+    for key in (*_PARAMETER_KEYS, "distance_angstrom"):
+        value = parameters.get(key, 0.0)
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            raise InputError(f"ligand '{name}': {key} must be a finite number, got {shown(value)}")
+    distance = parameters.get("distance_angstrom")
+    if distance is not None and not _DISTANCE_RANGE_ANGSTROM[0] <= distance <= _DISTANCE_RANGE_ANGSTROM[1]:
+        low, high = _DISTANCE_RANGE_ANGSTROM
+        raise InputError(f"ligand '{name}': distance_angstrom {distance} is no metal–donor distance: give {low}–{high} Å")
+    label = parameters.get("label", name)
+    if not isinstance(label, str) or not label.isprintable():
+        raise InputError(f"ligand '{name}': label must be one line of printable text, got {shown(label)}")
 
 
 def _monodentate_frame(positions: np.ndarray) -> np.ndarray:

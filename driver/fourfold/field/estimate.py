@@ -41,6 +41,7 @@ chemist does on paper, made explicit; every parameter can be overridden.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from functools import lru_cache
 
@@ -208,6 +209,8 @@ def parse_overrides(items) -> dict[str, float]:
             overrides[key] = float(value)
         except (TypeError, ValueError):
             raise InputError(f"override {key}={value!r}: the value must be a number") from None
+        if not math.isfinite(overrides[key]):  # nan or inf would reach the eigensolver
+            raise InputError(f"override {key}={value!r}: the value must be a finite number") from None
     return overrides
 
 

@@ -40,7 +40,8 @@ class Table:
 
     def heading(self, style: str) -> str:
         """The title in Markdown or terminal text ('md', 'text') or LaTeX ('tex'), the formula marked up."""
-        mark, escape = (formula_latex, tex_escape) if style == "tex" else (formula_unicode, str)
+        mark, escape = {"tex": (formula_latex, tex_escape), "md": (formula_unicode, md_escape)}.get(
+            style, (formula_unicode, str))
         return mark(self.formula).join(escape(part) for part in self.title.split("{formula}"))
 
     def column(self, key: str) -> list:
@@ -55,6 +56,11 @@ def _display_columns(table: Table) -> list[Column]:
     return [c for c in table.columns if c.where != "data"]
 
 
+# A cell a spreadsheet would run as a formula (OWASP, "CSV Injection": cells opening with =, +, -, @, tab or
+# carriage return; from memory) gets a leading apostrophe, which spreadsheets show as text.
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
 def _csv_value(value):
     if value is None:
         return ""
@@ -62,6 +68,8 @@ def _csv_value(value):
         return "true" if value else "false"
     if isinstance(value, float):
         return repr(value)  # shortest text that reads back to the same float
+    if isinstance(value, str) and value.startswith(_FORMULA_START):
+        return "'" + value
     return value
 
 
@@ -89,11 +97,17 @@ def _shown(value, column: Column, style: str) -> str:
         return f"${text}$" if style == "tex" else text.replace("-", "−")
     if column.kind == "formula":
         return formula_latex(value) if style == "tex" else formula_unicode(value)
-    return {"md": _md_escape, "tex": tex_escape}.get(style, str)(str(value))
+    return {"md": md_escape, "tex": tex_escape}.get(style, str)(str(value))
 
 
-def _md_escape(text: str) -> str:
-    return text.replace("|", "\\|")
+_MD_SPECIAL = re.compile(r"([\\`*_\[\]<>|#])")
+
+
+def md_escape(text: str) -> str:
+    """Text for Markdown, shown as written: its markup characters escaped, line breaks and other control
+    characters made spaces (a table cell or a heading is one line)."""
+    text = "".join(c if c.isprintable() else " " for c in text)
+    return _MD_SPECIAL.sub(r"\\\1", text)
 
 
 def to_markdown(table: Table, heading_level: int = 3, skip_notes=()) -> str:
@@ -129,6 +143,8 @@ def _tex_characters(text: str) -> str:
             out.append(_TEX_SPECIAL[ch])
         elif ch in _TEX_UNICODE:
             out.append(_TEX_UNICODE[ch])
+        elif not ch.isprintable():
+            out.append(" ")  # a line break or a control character: a heading or a cell is one line
         elif ord(ch) < 128:
             out.append(ch)
         else:

@@ -26,7 +26,7 @@ from ..geometry.polyhedra import arrangement_rank
 from ..units import energy_unit
 from ..verdict.comparison import START_SPREAD_LIMIT_KJ_MOL
 from .markup import multiplicity_word
-from .table import Column, Table, json_rows, to_markdown
+from .table import Column, Table, json_rows, md_escape, to_markdown
 
 FORMATS = ("csv", "md", "tex", "json")
 
@@ -439,7 +439,7 @@ def study_tables(comparison, unit: str = "kj") -> list[Table]:
 
 def markdown_report(tables: list[Table], comparison, unit: str, safety_markdown: str = "") -> str:
     """All tables in one Markdown file: the caveats once at the top, then each table with its own notes."""
-    lines = [f"# {comparison.title}", "", f"Level: `{comparison.level}`. Energies in {energy_unit(unit).label} "
+    lines = [f"# {md_escape(comparison.title)}", "", f"Level: `{comparison.level}`. Energies in {energy_unit(unit).label} "
              "(CODATA 2018 conversions), relative to each complex's lowest computed state; estimates relative to "
              "the estimate's lowest state.", ""]
     if comparison.warnings:

@@ -31,7 +31,7 @@ import tomllib
 from pathlib import Path
 
 from ..errors import ComputeError, InputError
-from .process import FAULT_ENV, complete_failure, exit_reason, job_paths, job_process_body
+from .process import FAULT_ENV, complete_failure, die_with_parent, exit_reason, job_paths, job_process_body
 
 _SUBMIT_COMMANDS = {"slurm": "sbatch", "pbs": "qsub"}
 # Exported in each batch job's script, so the Dask worker's own numpy starts with the job's thread count.
@@ -52,26 +52,12 @@ def job_process_main() -> None:
     """Body of a job's own process: arguments (pickled by the task that started it) on stdin, the
     result back on the original stdout; everything the job prints goes to its log (job_process_body)."""
     worker, job, parent, log_path, chk_path, threads = pickle.load(sys.stdin.buffer)
-    _die_with_worker(worker)
+    die_with_parent(worker)  # a lost worker leaves no job running unseen
     from multiprocessing.connection import Connection
 
     result_pipe = Connection(os.dup(1), readable=False)
     os.dup2(2, 1)  # stderr is the job's log already: nothing printed from here on can reach the result pipe
     job_process_body(job, parent, log_path, chk_path, threads, result_pipe)
-
-
-def _die_with_worker(worker: int) -> None:
-    """SIGKILL this job's process when the worker that started it dies (Linux), so a lost worker leaves
-    no job running unseen. Set here, not in a preexec hook: the worker has threads, and forking with a
-    hook there can deadlock."""
-    try:
-        import ctypes
-
-        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
-    except (OSError, AttributeError):
-        return
-    if os.getppid() != worker:  # the worker died before the signal was armed
-        os._exit(1)
 
 
 def _kill_worker_fault(label: str) -> None:
@@ -112,7 +98,7 @@ def run_on_worker(job, parent, log_path, chk_path, threads: int, timeout_s: floa
         result = {"status": "failed", "reason": f"timeout after {timeout_s:.0f} s"}
     reader.close()
     process.wait()
-    return result if result is not None else {"status": "failed", "reason": exit_reason(process.returncode)}
+    return result if result is not None else {"status": "failed", "reason": exit_reason(process.returncode, log_path)}
 
 
 # ------------------------------------------------------------------------------------------ driver side
@@ -205,12 +191,11 @@ def _distributed():
 
 def load_cluster_file(path) -> dict:
     """The [cluster] table of a separate TOML file (--cluster-config), validated as a recipe's is."""
-    from .recipe import cluster_settings
+    from .recipe import cluster_settings, read_toml_text
 
+    text = read_toml_text(Path(path), "cluster file")
     try:
-        data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError) as error:
-        raise InputError(f"{path}: cannot read it ({_first_line(error)}); give a UTF-8 TOML file") from None
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise InputError(f"{path}: not valid TOML ({error}); check quotes, brackets and '=' signs") from None
     unknown = sorted(set(data) - {"cluster"})

@@ -49,6 +49,7 @@ jobs = 4                             # optional: batch jobs to start (default 1)
 
 from __future__ import annotations
 
+import math
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -56,7 +57,7 @@ from pathlib import Path
 
 from ..chem.complex import Complex, complex_explicit, complex_from_formula
 from ..chem.ligands import Ligand, custom_ligand
-from ..errors import InputError
+from ..errors import InputError, shown
 from ..geometry.polyhedra import ARRANGEMENTS
 
 RELAXATION_KINDS = ("held", "free")
@@ -72,6 +73,11 @@ _CLUSTER_KEYS = _CLUSTER_REQUIRED | {"queue", "account", "jobs"}
 # What SLURM and PBS both read: a size with a unit ("32GB", "64 GiB") and [D-]HH:MM[:SS].
 _MEMORY = re.compile(r"^\d+(\.\d+)?\s*[kKMGT]i?B$")
 _WALLTIME = re.compile(r"^(\d+-)?\d{1,3}:\d{2}(:\d{2})?$")
+# Bounds on what a recipe can ask for (fourfold defaults): beyond them the input is a mistake, not a study.
+MAX_RECIPE_BYTES = 1_000_000  # a recipe is a few kB; a megabyte of TOML is some other file
+_MAX_PATH_POINTS = 100
+_MAX_RUN = {"workers": 4096, "threads": 4096, "max_steps": 100_000, "timeout_s": 10**9}
+_LIGAND_NUMBERS = ("f", "pi_ratio", "h", "distance_angstrom")
 
 
 @dataclass(frozen=True)
@@ -112,14 +118,22 @@ def _fail(path: str, where: str, message: str) -> InputError:
 
 def _expect(path, where, value, kind, what):
     if not isinstance(value, kind) or (kind is int and isinstance(value, bool)):
-        raise _fail(path, where, f"must be {what}, got {value!r}")
+        raise _fail(path, where, f"must be {what}, got {shown(value)}")
+    return value
+
+
+def _text(path, where, value, longest: int = 200) -> str:
+    """A name or title: a string of printable characters on one line (it is echoed in tables and headings)."""
+    _expect(path, where, value, str, "a string")
+    if not value.isprintable() or len(value) > longest:
+        raise _fail(path, where, f"must be one line of at most {longest} printable characters, got {shown(value)}")
     return value
 
 
 def _unknown_keys(path, where, table: dict, allowed: set):
     unknown = sorted(set(table) - allowed)
     if unknown:
-        raise _fail(path, where, f"unknown key{'s' if len(unknown) > 1 else ''} {', '.join(map(repr, unknown))}; "
+        raise _fail(path, where, f"unknown key{'s' if len(unknown) > 1 else ''} {', '.join(map(shown, unknown[:5]))}; "
                                  f"valid keys are {', '.join(sorted(allowed))}")
 
 
@@ -127,7 +141,7 @@ def _arrangement_list(path, where, value) -> tuple[str, ...]:
     _expect(path, where, value, list, "a list of arrangements such as [\"T-4\", \"SP-4\"]")
     for item in value:
         if item not in ARRANGEMENTS:
-            raise _fail(path, where, f"unknown arrangement {item!r}; use {', '.join(ARRANGEMENTS)}")
+            raise _fail(path, where, f"unknown arrangement {shown(item)}; use {', '.join(ARRANGEMENTS)}")
     if not value:
         raise _fail(path, where, "is empty; list at least one arrangement")
     return tuple(dict.fromkeys(value))
@@ -137,7 +151,9 @@ def _overrides(path, where, value) -> dict:
     _expect(path, where, value, dict, "a table of KEY = number, e.g. \"Cl.e_sigma\" = 4000")
     for key, number in value.items():
         if not isinstance(number, (int, float)) or isinstance(number, bool):
-            raise _fail(path, f"{where}.{key}", f"must be a number, got {number!r}")
+            raise _fail(path, f"{where}.{key}", f"must be a number, got {shown(number)}")
+        if not math.isfinite(number):
+            raise _fail(path, f"{where}.{key}", f"must be a finite number, got {shown(number)}")
     return {k: float(v) for k, v in value.items()}
 
 
@@ -163,6 +179,11 @@ def _ligands(path, table) -> dict[str, Ligand]:
             raise _fail(path, f"{where}.donor_indices", f"must be two 0-based atom indices such as [0, 7], "
                                                         f"got {spec['donor_indices']!r}")
         _expect(path, f"{where}.charge", spec["charge"], int, "an integer")
+        for key in _LIGAND_NUMBERS:
+            if key in spec:
+                _expect(path, f"{where}.{key}", spec[key], (int, float), "a number")
+        if "label" in spec:
+            _text(path, f"{where}.label", spec["label"], longest=80)
         extra = {k: v for k, v in spec.items() if k not in ("xyz", donors_key, "charge")}
         try:
             found[name] = custom_ligand(name, spec["xyz"], spec[donors_key], spec["charge"], **extra)
@@ -175,6 +196,8 @@ def _complex_entry(path, index, spec, ligands, default_arrangements, global_over
     where = f"complex[{index}]"
     _expect(path, where, spec, dict, "a [[complex]] table")
     _unknown_keys(path, where, spec, _COMPLEX_KEYS)
+    if "name" in spec:
+        _text(path, f"{where}.name", spec["name"], longest=80)
     try:
         if "formula" in spec:
             if "metal" in spec or "ligands" in spec:
@@ -186,7 +209,10 @@ def _complex_entry(path, index, spec, ligands, default_arrangements, global_over
                 if key not in spec:
                     raise InputError(f"the explicit form needs metal, oxidation_state and ligands; '{key}' is missing")
             _expect(path, f"{where}.oxidation_state", spec["oxidation_state"], int, "an integer")
+            _expect(path, f"{where}.metal", spec["metal"], str, "an element symbol such as \"Ni\"")
             _expect(path, f"{where}.ligands", spec["ligands"], list, "a list of four ligand names")
+            for number, name in enumerate(spec["ligands"]):
+                _expect(path, f"{where}.ligands[{number}]", name, str, "a ligand name such as \"Cl\"")
             charge = spec.get("charge")
             if charge is not None:
                 _expect(path, f"{where}.charge", charge, int, "an integer")
@@ -224,7 +250,8 @@ def _level(path, value):
             return custom_level(value)
     except InputError as error:
         raise _fail(path, "level", str(error)) from None
-    raise _fail(path, "level", f"must be a preset name (screen, quick, standard) or a [level] table, got {value!r}")
+    raise _fail(path, "level", f"must be a preset name (screen, quick, standard) or a [level] table, "
+                               f"got {shown(value)}")
 
 
 def cluster_settings(path, table) -> dict:
@@ -243,28 +270,32 @@ def cluster_settings(path, table) -> dict:
             _expect(path, f"cluster.{key}", table[key], str, "a string")
     if not _MEMORY.match(table["memory"]):
         raise _fail(path, "cluster.memory", f"must be a size with a unit such as \"32GB\" or \"64GiB\", got "
-                                            f"{table['memory']!r}")
+                                            f"{shown(table['memory'])}")
     if not _WALLTIME.match(table["walltime"]):
-        raise _fail(path, "cluster.walltime", f"must be HH:MM:SS (or D-HH:MM:SS), got {table['walltime']!r}")
+        raise _fail(path, "cluster.walltime", f"must be HH:MM:SS (or D-HH:MM:SS), got {shown(table['walltime'])}")
     return {"jobs": 1, **table}
 
 
 def parse_recipe(text: str, path: str = "<recipe>") -> Study:
     """Validate a recipe's text and return the Study it describes."""
+    if len(text) > MAX_RECIPE_BYTES:
+        raise InputError(f"{path}: {len(text) / 1e6:.1f} MB is no recipe (a recipe is a few kB of TOML): give the "
+                         "recipe's .toml file")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise InputError(f"{path}: not valid TOML ({error}); check quotes, brackets and '=' signs") from None
     _unknown_keys(path, "top level", data, _TOP_KEYS)
-    title = _expect(path, "title", data.get("title", Path(path).stem), str, "a string")
+    title = _text(path, "title", data.get("title", Path(path).stem))
     arrangements = _arrangement_list(path, "arrangements", data.get("arrangements", ["T-4", "SP-4"]))
     relaxations = data.get("relaxations", list(RELAXATION_KINDS))
     _expect(path, "relaxations", relaxations, list, "a list: [\"held\"], [\"free\"] or [\"held\", \"free\"]")
     if not relaxations or any(r not in RELAXATION_KINDS for r in relaxations):
-        raise _fail(path, "relaxations", f"use held, free or both, got {relaxations!r}")
+        raise _fail(path, "relaxations", f"use held, free or both, got {shown(relaxations)}")
     path_points = _expect(path, "path_points", data.get("path_points", 0), int, "an integer (0 for no path)")
-    if path_points < 0 or path_points == 1:
-        raise _fail(path, "path_points", f"must be 0 (no path) or at least 2, got {path_points}")
+    if path_points < 0 or path_points == 1 or path_points > _MAX_PATH_POINTS:
+        raise _fail(path, "path_points", f"must be 0 (no path) or at least 2 (at most {_MAX_PATH_POINTS}), got "
+                                         f"{path_points}")
     level = _level(path, data.get("level", "quick"))
     if "solvent" in data:
         solvent = data["solvent"]
@@ -295,8 +326,9 @@ def parse_recipe(text: str, path: str = "<recipe>") -> Study:
     _expect(path, "run", run, dict, "a [run] table")
     _unknown_keys(path, "run", run, _RUN_KEYS)
     for key, value in run.items():
-        if _expect(path, f"run.{key}", value, (int, float) if key == "timeout_s" else int, "a positive number") <= 0:
-            raise _fail(path, f"run.{key}", f"must be positive, got {value}")
+        _expect(path, f"run.{key}", value, (int, float) if key == "timeout_s" else int, "a positive number")
+        if not 0 < value <= _MAX_RUN[key]:  # false for NaN too
+            raise _fail(path, f"run.{key}", f"must be positive and at most {_MAX_RUN[key]}, got {shown(value)}")
     cluster = cluster_settings(path, data["cluster"]) if "cluster" in data else {}
     frequencies = _expect(path, "frequencies", data.get("frequencies", True), bool, "true or false")
     thermo = {}
@@ -312,13 +344,22 @@ def parse_recipe(text: str, path: str = "<recipe>") -> Study:
 def load_recipe(path) -> Study:
     """Read and validate a recipe file."""
     path = Path(path)
+    return parse_recipe(read_toml_text(path, "recipe"), str(path))
+
+
+def read_toml_text(path: Path, what: str) -> str:
+    """The text of a TOML input file, refused in one line when missing, unreadable, too big or not UTF-8."""
     try:
-        text = path.read_text(encoding="utf-8")
+        if path.stat().st_size > MAX_RECIPE_BYTES:
+            raise InputError(f"{what} {path} is {path.stat().st_size / 1e6:.1f} MB: a {what} is a few kB of TOML; "
+                             "is this the right file?")
+        return path.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise InputError(f"recipe {path} not found: give the path of a .toml recipe (e.g. recipes/demo.toml)") from None
+        raise InputError(f"{what} {path} not found: give the path of a .toml {what} (e.g. recipes/demo.toml)") from None
     except UnicodeDecodeError:
-        raise InputError(f"recipe {path} is not UTF-8 text: save it as UTF-8") from None
-    return parse_recipe(text, str(path))
+        raise InputError(f"{what} {path} is not UTF-8 text: save it as UTF-8") from None
+    except OSError as error:
+        raise InputError(f"{what} {path}: cannot read it ({error.strerror}); give a readable .toml file") from None
 
 
 def scan_recipe_text(formula: str, level: str, relaxations=RELAXATION_KINDS, arrangements=("T-4", "SP-4"),

@@ -2,8 +2,9 @@
 
 Each job runs in a process of its own (forked from a clean fork server), so a crash of one job — an
 exception, a segfault, the OOM killer, a timeout — is recorded as a failure with its reason and the others
-go on. Finished jobs are in the store the moment they end; a rerun skips every key already done (and every
-failed one unless asked to retry), so a killed batch resumes where it stopped.
+go on. Finished jobs are in the store the moment they end, each with its record beside it (fourfold.study.records);
+a rerun skips every key already done (and every failed one unless asked to retry), so a killed batch resumes
+where it stopped. Job processes die with the driver, however it ends (fourfold.study.process.die_with_parent).
 """
 
 from __future__ import annotations
@@ -19,19 +20,25 @@ from multiprocessing import connection, get_context
 from pathlib import Path
 from types import SimpleNamespace
 
-from ..errors import InputError
+from ..errors import InputError, describe_os_error
 from .jobs import Job, code_versions, expand
-from .process import complete_failure, exit_reason, failed_result, job_paths, job_process_body
-from .store import ResultStore
+from .process import complete_failure, exit_reason, failed_result, job_paths, local_job_main
+from .records import RecordShelf, write_text_atomic
+from .stopping import blocked, deferred
+from .store import ResultStore, StoreError, store_records
 
 DEFAULT_TIMEOUT_S = 3600.0
 _POLL_S = 0.2
+_JOIN_S = 5.0  # a killed job process is gone well within this
+
+
 @dataclass
 class RunSummary:
     total: int
     done: int = 0
     failed: int = 0
     skipped: int = 0  # already in the store before this run
+    restored: int = 0  # of those, stored now from their records (the last run stopped before storing them)
     ran: int = 0
     failures: list = field(default_factory=list)
     wall_seconds: float = 0.0
@@ -55,8 +62,11 @@ class RunLock:
         if self.folder in RunLock._held:
             RunLock._held[self.folder] += 1
             return self
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._handle = open(self.path, "a+")
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            self._handle = open(self.path, "a+")
+        except OSError as error:
+            raise StoreError(f"cannot lock {self.folder} for writing ({describe_os_error(error)})") from None
         try:
             fcntl.flock(self._handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -78,7 +88,11 @@ class RunLock:
         path = Path(folder) / "run.lock"
         if not path.exists() or Path(folder).resolve() in RunLock._held:
             return False
-        with open(path) as handle:
+        try:
+            handle = open(path)
+        except OSError:  # unreadable, or not a file: no run of ours holds it
+            return False
+        with handle:
             try:
                 fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
             except BlockingIOError:
@@ -104,8 +118,8 @@ def write_provenance(out_dir: Path, study) -> None:
     """The folder's record of what ran: the Study written back as TOML (levels in full), and the versions."""
     from .recipe import study_to_toml
 
-    (out_dir / "recipe.toml").write_text(study_to_toml(study), encoding="utf-8")
-    (out_dir / "versions.json").write_text(json.dumps(code_versions(), indent=2) + "\n", encoding="utf-8")
+    write_text_atomic(out_dir / "recipe.toml", study_to_toml(study))
+    write_text_atomic(out_dir / "versions.json", json.dumps(code_versions(), indent=2) + "\n")
 
 
 def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: bool = False,
@@ -123,18 +137,24 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
         raise InputError("--workers and --threads must be at least 1")
     started = time.perf_counter()
     with RunLock(out_dir):
-        write_provenance(out_dir, study)
-        (out_dir / "logs").mkdir(exist_ok=True)
-        (out_dir / "scratch").mkdir(exist_ok=True)
+        try:
+            write_provenance(out_dir, study)
+            (out_dir / "logs").mkdir(exist_ok=True)
+            (out_dir / "scratch").mkdir(exist_ok=True)
+        except OSError as error:
+            raise StoreError(f"cannot write the study folder ({describe_os_error(error)})") from None
         store = ResultStore(store_url or out_dir / "results.db")
+        shelf = RecordShelf(out_dir)
         jobs = expand(study)
         stored = store.status()
+        restored = store_records(store, shelf, stored, {j.key for j in jobs})
         if retry_failed:
             again = [j.key for j in jobs if stored.get(j.key) == "failed"]
+            shelf.remove(again)
             store.remove(again)
             for key in again:
                 stored.pop(key)
-        summary = RunSummary(total=len(jobs))
+        summary = RunSummary(total=len(jobs), restored=restored)
         summary.skipped = sum(1 for j in jobs if j.key in stored)
         summary.done = sum(1 for j in jobs if stored.get(j.key) == "done")
         summary.failed = sum(1 for j in jobs if stored.get(j.key) == "failed")
@@ -144,7 +164,7 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
         summary.workers = workers if pool_factory is None else max(1, pool.free_slots())
         if on_start:
             on_start()
-        _drive(pending, stored, store, pool, summary, progress, _RunningFile(out_dir, summary.workers))
+        _drive(pending, stored, store, shelf, pool, summary, progress, _RunningFile(out_dir, summary.workers))
     summary.wall_seconds = time.perf_counter() - started
     return summary
 
@@ -171,6 +191,7 @@ class LocalPool:
         # Each job limits its own BLAS/OpenMP threads (job_process_body): the caller's environment is left alone.
         self._context = get_context("forkserver")
         self._context.set_forkserver_preload(list(JOB_MODULES))
+        self._server_started = False
         self.workers, self.threads, self.out_dir, self.timeout_s = workers, threads, out_dir, timeout_s
         self._running: list[_Running] = []
 
@@ -181,9 +202,16 @@ class LocalPool:
         return [r.job.label for r in self._running]
 
     def submit(self, job: Job, parent: dict | None) -> None:
+        if not self._server_started:
+            from multiprocessing import forkserver, resource_tracker
+
+            resource_tracker.ensure_running()  # first: starting it unblocks SIGINT and SIGTERM in this process
+            with blocked():  # the server starts with the stop signals blocked: they are the driver's (stopping.py)
+                forkserver.ensure_running()
+            self._server_started = True
         receive, send = self._context.Pipe(duplex=False)
         log_path, chk_path = job_paths(self.out_dir, job)
-        process = self._context.Process(target=job_process_body, daemon=True,
+        process = self._context.Process(target=local_job_main, daemon=True,
                                         args=(job, parent, log_path, chk_path, self.threads, send))
         process.start()
         send.close()
@@ -210,15 +238,21 @@ class LocalPool:
                 result = {"status": "failed", "reason": f"timeout after {self.timeout_s:.0f} s"}
             item.process.join(timeout=5)
             if result is None:
-                result = {"status": "failed", "reason": exit_reason(item.process.exitcode)}
+                log_path = job_paths(self.out_dir, item.job)[0]
+                result = {"status": "failed", "reason": exit_reason(item.process.exitcode, log_path)}
             item.conn.close()
             self._running.remove(item)
             ended.append((item.job, complete_failure(item.job, result, item.parent)))
         return ended
 
     def close(self) -> None:
+        """End every running job process and wait for it, so none outlives the run."""
         for item in self._running:
             item.process.kill()
+        for item in self._running:
+            item.process.join(_JOIN_S)
+            item.conn.close()
+        self._running.clear()
 
 
 def predicted_cost(job) -> float:
@@ -285,7 +319,7 @@ def _critical_path_costs(jobs) -> dict[str, float]:
     return found
 
 
-def _drive(pending, stored, store, pool, summary, progress, running_file):
+def _drive(pending, stored, store, shelf, pool, summary, progress, running_file):
     priority = _critical_path_costs(pending)
     pending.sort(key=lambda job: priority[job.key], reverse=True)  # stable: ties keep the expansion order
     if progress:
@@ -295,7 +329,7 @@ def _drive(pending, stored, store, pool, summary, progress, running_file):
             # Jobs whose parent failed are failures too (recorded, so a --retry-failed rerun picks them up).
             for job in [j for j in pending if j.parent and stored.get(j.parent) == "failed"]:
                 pending.remove(job)
-                _finish(job, failed_result(job, "parent job failed", None), store, stored, summary)
+                _finish(job, failed_result(job, "parent job failed", None), store, shelf, stored, summary)
             ready = [j for j in pending if not j.parent or stored.get(j.parent) == "done"]
             while ready and pool.free_slots() > 0:
                 job = ready.pop(0)
@@ -304,19 +338,27 @@ def _drive(pending, stored, store, pool, summary, progress, running_file):
             running_file.update(pool.running_labels())
             if progress:
                 progress(summary, pool.running_labels())
-            for job, result in pool.collect(_POLL_S):
-                summary.ran += 1
-                summary.job_seconds += float(result.get("wall_seconds") or 0.0)
-                _finish(job, result, store, stored, summary)
-                if progress:
-                    progress(summary, pool.running_labels())
+            with deferred():  # a result received is kept before a stop takes effect (at most _POLL_S later)
+                for job, result in pool.collect(_POLL_S):
+                    summary.ran += 1
+                    summary.job_seconds += float(result.get("wall_seconds") or 0.0)
+                    _finish(job, result, store, shelf, stored, summary)
+                    if progress:
+                        progress(summary, pool.running_labels())
     finally:
         pool.close()
         running_file.close()
 
 
-def _finish(job, result, store, stored, summary):
-    store.record(job, result)
+def _finish(job, result, store, shelf, stored, summary):
+    """Keep one finished job: its record first (so a store that fails now loses nothing), then its row."""
+    with deferred():
+        try:
+            shelf.write(job, result)
+        except OSError as error:
+            raise StoreError(f"cannot keep the result of {job.label} ({describe_os_error(error)}); finished jobs "
+                             "before it are kept") from None
+        store.record(job, result)
     stored[job.key] = result["status"]
     if result["status"] == "done":
         summary.done += 1
