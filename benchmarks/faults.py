@@ -51,8 +51,9 @@ def main():
         print(tests.stdout[-4000:])
     print(f"tests: {', '.join(f'{n} {what}' for n, what in outcome)}")
     if stops:
-        print(f"signals: {len(stops)} sent; stopped within {max(stops):.1f} s at most, {sorted(stops)[len(stops) // 2]:.1f} s "
-              "median (signal to exit, as the test saw it)")
+        median = sorted(stops)[len(stops) // 2]
+        print(f"signals: {len(stops)} sent; stopped within {max(stops):.1f} s at most, {median:.1f} s median "
+              "(signal to exit, as the test saw it)")
     print(f"faults injected: {totals['fault']}")
     print(f"bad inputs tried: {totals['bad_input']}")
     print(f"tracebacks seen: {totals['traceback']} (must be 0)")

@@ -38,7 +38,6 @@ class RunSummary:
     done: int = 0
     failed: int = 0
     skipped: int = 0  # already in the store before this run
-    restored: int = 0  # of those, stored now from their records (the last run stopped before storing them)
     ran: int = 0
     failures: list = field(default_factory=list)
     wall_seconds: float = 0.0
@@ -147,14 +146,14 @@ def run_study(study, out_dir, workers: int = 2, threads: int = 1, retry_failed: 
         shelf = RecordShelf(out_dir)
         jobs = expand(study)
         stored = store.status()
-        restored = store_records(store, shelf, stored, {j.key for j in jobs})
+        store_records(store, shelf, stored, {j.key for j in jobs})  # rows a stopped run had not stored yet
         if retry_failed:
             again = [j.key for j in jobs if stored.get(j.key) == "failed"]
             shelf.remove(again)
             store.remove(again)
             for key in again:
                 stored.pop(key)
-        summary = RunSummary(total=len(jobs), restored=restored)
+        summary = RunSummary(total=len(jobs))
         summary.skipped = sum(1 for j in jobs if j.key in stored)
         summary.done = sum(1 for j in jobs if stored.get(j.key) == "done")
         summary.failed = sum(1 for j in jobs if stored.get(j.key) == "failed")
