@@ -839,7 +839,16 @@ def save_figure(fig, stem, formats=FIGURE_FORMATS) -> list[Path]:
         for extension in formats:
             target = stem.with_suffix(f".{extension}")
             partial = target.with_name(f".{target.name}.{os.getpid()}.partial")
-            fig.savefig(partial, format=extension, dpi=PNG_DPI, metadata=_METADATA[extension])
+            try:
+                fig.savefig(partial, format=extension, dpi=PNG_DPI, metadata=_METADATA[extension])
+            except Exception as error:
+                partial.unlink(missing_ok=True)
+                # matplotlib's PDF writer, cut off by a full disk, fails again while closing its stream: the
+                # error that reaches here is then an AttributeError whose context is the real OSError
+                cause = error if isinstance(error, OSError) else error.__context__
+                if isinstance(cause, OSError):
+                    raise cause from None
+                raise
             os.replace(partial, target)
             written.append(target)
     return written
