@@ -277,7 +277,7 @@ def d_configuration_density(mol, fock: np.ndarray, target: DTarget, metal_index:
     levels = pure @ d_rotation(_frame_rotation(mol, target, metal_index, donors)) @ target.vectors
     others = np.setdiff1d(np.arange(len(found.energies)), found.kept)
     densities = []
-    for name, wanted, electrons in zip(("alpha", "beta"), (target.alpha, target.beta), mol.nelec):
+    for name, wanted, electrons in zip(("alpha", "beta"), (target.alpha, target.beta), mol.nelec, strict=False):
         in_d = levels[:, np.asarray(wanted, dtype=bool)]
         rest = int(electrons) - in_d.shape[1]
         if rest < 0:

@@ -123,9 +123,9 @@ def build_mole(atoms, charge: int, spin2s: int, basis: str, ecp: str | None = "a
 
     numbers = [int(z) for z in atoms.get_atomic_numbers()]
     symbols = list(atoms.get_chemical_symbols())
-    heavy = sorted({s for s, z in zip(symbols, numbers) if z >= ECP_MIN_Z})
+    heavy = sorted({s for s, z in zip(symbols, numbers, strict=False) if z >= ECP_MIN_Z})
     mol = gto.Mole()
-    mol.atom = [(s, tuple(float(x) for x in p)) for s, p in zip(symbols, np.asarray(atoms.positions, dtype=float))]
+    mol.atom = [(s, tuple(float(x) for x in p)) for s, p in zip(symbols, np.asarray(atoms.positions, dtype=float), strict=False)]
     mol.unit = "Angstrom"
     mol.basis = basis
     mol.ecp = _ecp_for(basis, ecp, heavy)
@@ -241,7 +241,7 @@ def _guess_density(mol, guess, restricted: bool, keep_spin: bool = False) -> tup
 
 def _density_from_orbitals(mo_coeff: np.ndarray, mo_occ: np.ndarray) -> np.ndarray:
     if mo_coeff.ndim == 3:
-        return np.array([(c * o) @ c.T for c, o in zip(mo_coeff, mo_occ)])
+        return np.array([(c * o) @ c.T for c, o in zip(mo_coeff, mo_occ, strict=False)])
     return (mo_coeff * mo_occ) @ mo_coeff.T
 
 
@@ -249,7 +249,7 @@ def _density_from_orbitals(mo_coeff: np.ndarray, mo_occ: np.ndarray) -> np.ndarr
 
 def _gap_and_aufbau(mo_energy: np.ndarray, mo_occ: np.ndarray) -> tuple[float, bool]:
     gaps = []
-    for energies, occupations in zip(np.atleast_2d(mo_energy), np.atleast_2d(mo_occ)):
+    for energies, occupations in zip(np.atleast_2d(mo_energy), np.atleast_2d(mo_occ), strict=False):
         occupied, virtual = energies[occupations > 0], energies[occupations == 0]
         if len(occupied) and len(virtual):
             gaps.append(float(virtual.min() - occupied.max()))
@@ -273,7 +273,7 @@ def _fock_from_orbitals(mf, mol, mo_energy: np.ndarray, mo_coeff: np.ndarray, dm
         return np.asarray(mf.get_fock(dm=dm))
     overlap = mol.intor_symmetric("int1e_ovlp")
     if mo_coeff.ndim == 3:
-        return np.array([_fock_from_orbitals(mf, mol, e, c, dm) for e, c in zip(mo_energy, mo_coeff)])
+        return np.array([_fock_from_orbitals(mf, mol, e, c, dm) for e, c in zip(mo_energy, mo_coeff, strict=False)])
     projected = overlap @ mo_coeff
     return (projected * mo_energy) @ projected.T
 

@@ -112,7 +112,7 @@ def _uks_hessian(uks_mf):
     """
     mo_energy, mo_coeff, mo_occ = uks_mf.mo_energy, uks_mf.mo_coeff, uks_mf.mo_occ
     blocks = []
-    for energy, coeff, occ in zip(mo_energy, mo_coeff, mo_occ):
+    for energy, coeff, occ in zip(mo_energy, mo_coeff, mo_occ, strict=False):
         occupied, virtual = occ > 0, occ == 0
         blocks.append((coeff[:, occupied], coeff[:, virtual], energy[virtual][:, None] - energy[occupied][None, :]))
     sizes = [gaps.size for _, _, gaps in blocks]
@@ -121,12 +121,12 @@ def _uks_hessian(uks_mf):
     def hessian_times(x):
         parts = np.split(np.asarray(x), [sizes[0]])
         changes = []
-        for (orbo, orbv, gaps), part in zip(blocks, parts):
+        for (orbo, orbv, gaps), part in zip(blocks, parts, strict=False):
             half = orbv @ part.reshape(gaps.shape) @ orbo.T
             changes.append(half + half.T)
         potential = response(np.array(changes))
         out = [gaps * part.reshape(gaps.shape) + orbv.T @ v @ orbo
-               for (orbo, orbv, gaps), part, v in zip(blocks, parts, potential)]
+               for (orbo, orbv, gaps), part, v in zip(blocks, parts, potential, strict=False)]
         return 2.0 * np.concatenate([o.ravel() for o in out])
 
     return hessian_times, 2.0 * np.concatenate([gaps.ravel() for _, _, gaps in blocks])
@@ -144,4 +144,4 @@ def uks_internal_instability(uks_mf) -> tuple[float | None, np.ndarray | None]:
         return eigenvalue, None
     n_alpha = int(np.count_nonzero(uks_mf.mo_occ[0] > 0) * np.count_nonzero(uks_mf.mo_occ[0] == 0))
     return eigenvalue, np.array([rotate_orbitals(c, o, v) for c, o, v in
-                                 zip(uks_mf.mo_coeff, uks_mf.mo_occ, np.split(vector, [n_alpha]))])
+                                 zip(uks_mf.mo_coeff, uks_mf.mo_occ, np.split(vector, [n_alpha]), strict=False)])

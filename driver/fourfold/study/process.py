@@ -12,7 +12,7 @@ from __future__ import annotations
 import os
 import signal
 import time
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 from ..chem.notation import formula_slug
@@ -89,7 +89,7 @@ def _log_header(job, threads: int) -> str:
     versions = ", ".join(f"{k} {v}" for k, v in code_versions().items())
     return (f"# fourfold job: {job.label}\n# task: {job.task}; charge {s.charge:+d}; 2S = {s.spin2s}\n"
             f"# engine: {engine}\n# job key: {job.key}\n# parent: {job.parent or 'none'}\n"
-            f"# started: {datetime.now(timezone.utc).isoformat(timespec='seconds')}; threads {threads}\n"
+            f"# started: {datetime.now(UTC).isoformat(timespec='seconds')}; threads {threads}\n"
             f"# versions: {versions}\n")
 
 

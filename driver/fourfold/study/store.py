@@ -2,8 +2,8 @@
 
 Only the driver process writes. Rows carry the structure (relaxed, or the start geometry of a failed job)
 and the key-value pairs `job_key`, `status` ('done' | 'failed'), `task`, `arrangement`, `isomer`, `spin2s`,
-`energy_hartree`, `converged`, plus `complex_formula` (ASE reserves `formula`), `kind`, `engine`; everything else of the result sits in
-`data`. ASE's own lock file is switched off: a lock left by a killed process would block the rerun, and
+`energy_hartree`, `converged`, plus `complex_formula` (ASE reserves `formula`), `kind`, `engine`; everything
+else of the result sits in `data`. ASE's own lock file is switched off: a lock left by a killed process would block the rerun, and
 with a single writer it protects nothing (the run lock in fourfold.study.runner keeps writers single).
 
 Every finished job also has a record in the study folder (fourfold.study.records), so the store can always be
