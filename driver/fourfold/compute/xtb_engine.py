@@ -17,7 +17,7 @@ Ni–C 1.86 Å, C–N 1.15 Å); E(T-4 triplet) − E(SP-4 singlet) in kJ/mol, an
     [PdCl4]2-     +82.4                   +40.4 (SP-4 singlet)     0.93–0.99 / 0.00
     ============  ======================  =======================  ===========================
 
-Spin polarisation puts all three ground states where experiment has them (REFERENCES.md §5); each
+Spin polarisation puts all three ground states where experiment has them (docs/sources.md#four-coordinate-rules); each
 relaxation took 6–34 steps and 0.2–0.9 s. A free SP-4 triplet falls to the flattened tetrahedron
 (tau4 ≈ 0.95). The gaps themselves are not to be trusted (``XTB_SPIN_WARNING``).
 

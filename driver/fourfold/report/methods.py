@@ -576,8 +576,16 @@ def _grid_sentence(study, level) -> list:
     return parts + [". "]
 
 
+# What fourfold.compute.state_search does for every DFT single point, said once for the methods section.
+STATE_SEARCH = ("Each state was converged from more than one start: the default (or its relaxation's orbitals) and "
+                "a density built to the d configuration the ligand-field estimate gives that state; every "
+                "open-shell solution was tested for an internal (UKS → UKS) instability, which was followed "
+                "downhill, and the lowest solution with the spin character of the state was kept")
+
+
 def _scf_sentences(level, has_single_point: bool, comparison, state_search: str | None) -> list:
-    from ..compute.pyscf_engine import DAMPING, S2_TOLERANCE, SHIFT_HARTREE, SMEARING_SIGMA_HARTREE
+    from ..compute.pyscf_engine import S2_TOLERANCE
+    from ..compute.scf_ladder import DAMPING, SHIFT_HARTREE, SMEARING_SIGMA_HARTREE
 
     s2 = Math("⟨S²⟩", r"$\langle S^2\rangle$")
     parts = ["SCF convergence: energy change below ", _number(level.conv_tol), " ", HARTREE,
@@ -597,8 +605,7 @@ def _scf_sentences(level, has_single_point: bool, comparison, state_search: str 
                   _cite("yamaguchi1988-projection"), " using the triplet at the same geometry. "]
     parts += ["States with ", Math(f"|⟨S²⟩ − S(S+1)| > {S2_TOLERANCE:g}", rf"$|\langle S^2\rangle - S(S+1)| > "
                                    rf"{S2_TOLERANCE:g}$"), " are flagged as spin-contaminated. "]
-    if state_search:
-        parts += [state_search.strip().rstrip(".") + ". "]
+    parts += [(state_search or STATE_SEARCH).strip().rstrip(".") + ". "]
     return parts
 
 
