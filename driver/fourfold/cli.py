@@ -255,7 +255,7 @@ def _cluster_pool(study, threads, scheduler, cluster_kind, cluster_config):
                                            "minutes, xTB energies only). Default: the recipe's quick.")
 @_with_run_options
 def demo(level, out_dir, workers, threads, retry_failed, timeout_s, quiet, as_json, temperature_k, figure_style):
-    """Run the bundled demo study (four nickel(II) complexes at the quick level) into outputs/demo."""
+    """Run the bundled demo study (three nickel(II) complexes at the quick level) into outputs/demo."""
     from importlib import resources
     from pathlib import Path
 
