@@ -59,6 +59,31 @@ def test_the_oxygen_molecule_triplet_saddle_is_followed_down_to_the_minimum():
     assert searched.stability_eigenvalue > 0 and searched.right_spin_character
 
 
+def test_open_shells_get_a_huckel_and_a_neighbour_spin_start():
+    # UHF/6-31G O2 triplet at 1.3 Å (the saddle case above): besides the default start, a Hückel guess
+    # (Lehtola, J. Chem. Theory Comput. 2019, 15, 1593) and the singlet converged at the same geometry
+    # seed their own SCFs. Each search ends on the lowest converged solution of the right spin character
+    # (Thom & Head-Gordon 2008), and the neighbour's own cycles are counted.
+    level = custom_level({"name": "hf-631g", "method": "hf", "basis": "6-31g", "ecp": "none",
+                          "density_fit": False, "conv_tol": 1e-9})
+    oxygen = Atoms("O2", positions=[[0, 0, 0], [0, 0, 1.3]])
+    result = engine.run_scf(oxygen, 0, 2, level, neighbour_spins=(0,))
+    labels = [start["label"] for start in result.starts]
+    assert labels[:3] == ["default", "Hückel guess", "neighbour 2S=0"]
+    assert result.energy_hartree <= min(s["energy_hartree"] for s in result.starts if s["converged"]) + 1e-9
+    assert any("neighbour spin states converged at this geometry" in note for note in result.notes)
+    assert result.cycles > sum(start["cycles"] for start in result.starts)
+    assert result.right_spin_character and result.stability_eigenvalue > 0
+
+
+def test_a_stable_closed_shell_never_pays_for_its_neighbour():
+    # Water's RHF/STO-3G closed shell is stable (CrawfordGroup ProgrammingProjects, Project #3, 2021): the
+    # triplet that would seed a broken-symmetry search is never converged.
+    result = engine.run_scf(WATER, 0, 0, HF_STO3G, neighbour_spins=(2,))
+    assert len(result.starts) == 1
+    assert not any("neighbour spin states converged" in note for note in result.notes)
+
+
 def test_the_d_configuration_start_holds_the_intended_occupation_in_any_frame():
     # T-4 [CoCl4]2- quartet: e^4 t2^3 with all three t2 electrons α (ligand-field theory of d7 in Td;
     # Figgis & Hitchman, Ligand Field Theory and Its Applications, 2000, from memory). The start density
@@ -118,6 +143,64 @@ def test_cocl4_doublet_reaches_the_lowest_solution_at_quick():
     _assert_lowest_doublet_reached(_cocl4_doublet_search(get_level("quick"), True), below_kj_mol=50)
 
 
+def _assert_lowest_kept(found: dict) -> None:
+    # Two solutions closer than the search's LOWER_ENERGY_HARTREE count as one; the first found is kept.
+    lowest = min(s["energy_hartree"] for s in found["starts"] if s["converged"])
+    assert found["energy_hartree"] <= lowest + state_search.LOWER_ENERGY_HARTREE
+
+
+def _default_single_point(formula: str, arrangement: str, spin2s: int, atoms, engine_changes=None) -> dict:
+    """The single point a default `quick` study runs for this state (its JobSpec from the study's own job
+    list), at ``atoms``; ``engine_changes`` alter its level (a smaller basis for the fast variant)."""
+    from dataclasses import replace
+
+    from fourfold.compute.tasks import run_task
+    from fourfold.study.jobs import expand
+    from fourfold.study.recipe import parse_recipe
+
+    study = parse_recipe(f'level = "quick"\nrelaxations = ["free"]\n[[complex]]\nformula = "{formula}"\n')
+    spec = next(job.spec for job in expand(study) if job.task == "single-point" and job.spec.arrangement == arrangement
+                and job.spec.spin2s == spin2s)
+    if engine_changes:
+        spec = replace(spec, engine={**spec.engine, **engine_changes})
+    parent = {"symbols": atoms.get_chemical_symbols(), "positions_angstrom": atoms.get_positions().tolist(),
+              "converged": True, "geometry_converged": True, "status": "done", "warnings": []}
+    return run_task("single-point", spec, parent)
+
+
+def test_the_default_job_passes_every_start(monkeypatch):
+    # The single point a default study runs asks the engine for the neighbouring spin state and the
+    # d-configuration start (the state search of compute/state_search.py; its behaviour is pinned by the
+    # engine-level tests above and by the slow job-level tests below, which run minutes at quick).
+    from fourfold.compute import tasks
+
+    asked = {}
+
+    def fake_run_scf(atoms, charge, spin2s, level, **options):
+        asked.update(options, spin2s=spin2s)
+        raise RuntimeError("stop after the call")
+
+    monkeypatch.setattr(engine, "run_scf", fake_run_scf)
+    cx = complex_from_formula("[CoCl4]2-")
+    with pytest.raises(RuntimeError, match="stop after the call"):
+        _default_single_point("[CoCl4]2-", "T-4", 1, build(cx, "T-4"))
+    assert asked["spin2s"] == 1 and asked["neighbour_spins"] == (3,)
+    assert asked["d_target"].as_dict() == target_for(cx, "T-4", 1).as_dict()
+    assert tasks.neighbour_spin(2) == 0 and tasks.neighbour_spin(0) == 2
+
+
+@pytest.mark.slow
+def test_the_default_job_reaches_the_lowest_cocl4_doublet_at_quick():
+    # As above at quick (B3LYP-D3(BJ)/def2-SVP, C-PCM acetonitrile for the dianion): the default command's
+    # own job, not a hand-made search.
+    cx = complex_from_formula("[CoCl4]2-")
+    found = _default_single_point("[CoCl4]2-", "T-4", 1, build(cx, "T-4"))
+    _assert_lowest_kept(found)
+    neighbour = next(s for s in found["starts"] if s["label"] == "neighbour 2S=3")
+    assert neighbour["converged"]  # the quartet-density start ran (alone it lands far above: the test above)
+    assert found["s2"] == pytest.approx(1.75, abs=0.05) and found["right_spin_character"]
+
+
 # GFN2-xTB (tblite) relaxation of the SP-4 [NiCl4]2- triplet with the Cl–Ni–Cl angles held (fourfold's
 # own run, rounded to 1e-5 Å): Ni–Cl 2.285–2.290 Å.
 NICL4_SP4_HELD = Atoms("NiCl4", positions=[
@@ -139,3 +222,17 @@ def test_nicl4_square_planar_triplet_reaches_the_lower_solution_at_quick():
     assert (first["first_energy_hartree"] - result.energy_hartree) * HARTREE_KJ_MOL > 40
     assert result.energy_hartree <= min(s["energy_hartree"] for s in result.starts if s["converged"]) + 1e-9
     assert result.stability_eigenvalue > 0 and result.s2 == pytest.approx(2.0, abs=0.05)
+
+
+@pytest.mark.slow
+def test_the_default_job_reaches_the_lower_nicl4_square_planar_triplet():
+    # The default command's own single point for the SP-4 [NiCl4]2- triplet (quick: C-PCM acetonitrile for
+    # the dianion) at the held structure above: it must end at or below the solution the singlet's
+    # density reaches (measured: the singlet-density start 0.06 kJ/mol above the default's solution here;
+    # in the gas phase the default start alone lands 55 kJ/mol above it, the test above) and keep the
+    # lowest of its starts, with the neighbour singlet among them.
+    found = _default_single_point("[NiCl4]2-", "SP-4", 2, NICL4_SP4_HELD)
+    neighbour = next(s for s in found["starts"] if s["label"] == "neighbour 2S=0")
+    assert found["energy_hartree"] <= neighbour["energy_hartree"] + state_search.LOWER_ENERGY_HARTREE
+    _assert_lowest_kept(found)
+    assert found["s2"] == pytest.approx(2.0, abs=0.05) and found["stability_eigenvalue"] > 0

@@ -30,7 +30,7 @@ import numpy as np
 from ..errors import ComputeError, InputError, NotConverged
 from ..units import HARTREE_KJ_MOL
 from .levels import Level
-from .scf_ladder import RUNGS, MeanFields, finish_on_grid
+from .scf_ladder import RUNGS, MeanFields, finish_on_grid, ladder
 from .state_search import BROKEN_SYMMETRY_S2, Outcome, right_spin_character, search
 from .threads import pyscf_threads
 
@@ -338,8 +338,8 @@ def _result(outcome: Outcome, run, mol, spin2s: int, dispersion: float, started:
 FORMS = (None, "restricted", "unrestricted")
 
 
-def _neighbour_densities(mol, neighbours, notes: list[str]) -> list[tuple[str, np.ndarray]]:
-    """(label, UKS density) of each neighbouring-state guess, with its own spin polarisation kept."""
+def _neighbour_densities(mol, neighbours, notes: list[str]) -> list[tuple[str, object]]:
+    """(label, density callable) of each given neighbouring-state guess, with its own spin polarisation."""
     found = []
     for index, neighbour in enumerate(neighbours):
         dm, note = _guess_density(mol, neighbour, restricted=False, keep_spin=True)
@@ -348,8 +348,29 @@ def _neighbour_densities(mol, neighbours, notes: list[str]) -> list[tuple[str, n
         if dm is None:
             continue
         spin = getattr(neighbour, "spin2s", None)
-        found.append((f"neighbour 2S={spin}" if spin is not None else f"neighbour {index + 1}", dm))
+        found.append((f"neighbour 2S={spin}" if spin is not None else f"neighbour {index + 1}", lambda dm=dm: dm))
     return found
+
+
+def _neighbour_spin_starts(mol, level: Level, scf_grid: int, spins, notes: list[str], spent: list[int]):
+    """(label, density callable) for each neighbouring spin state converged here, at this geometry.
+
+    The neighbour runs its default start only (RKS for a singlet), when the search reaches it; its cycles
+    go to ``spent``. Its α and β densities are the start (``keep_spin``), so one spin flips.
+    """
+    def start(spin2s: int):
+        other = mol.copy()
+        other.spin = spin2s
+        other.build(False, False)
+        run = ladder(MeanFields(other, level, scf_grid).get(spin2s == 0), None)
+        spent.append(run.cycles)
+        if not run.converged:
+            notes.append(f"neighbour 2S={spin2s} did not converge at this geometry: that start skipped")
+            return None
+        dm = np.asarray(run.mf.make_rdm1())
+        return dm if dm.ndim == 3 else np.array((dm * 0.5, dm * 0.5))
+
+    return [(f"neighbour 2S={spin}", lambda spin=spin: start(spin)) for spin in spins]
 
 
 def _d_start(mol, d_target):
@@ -372,7 +393,7 @@ def _d_start(mol, d_target):
 
 
 def _calculate(atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form,
-               neighbours=(), d_target=None, run_search=True):
+               neighbours=(), d_target=None, run_search=True, neighbour_spins=()):
     """Everything but the result packing: (outcome, finished run, mol, dispersion, notes)."""
     if form not in FORMS:
         raise InputError(f"form '{form}' is not one of restricted, unrestricted or None (decide)")
@@ -387,10 +408,15 @@ def _calculate(atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung
         notes.append(note)
     scf_grid = level.scf_grid_level if level.scf_grid_level is not None else level.grid_level
     fields = MeanFields(mol, level, scf_grid)
-    outcome = search(fields, spin2s, dm0, cycle_cap_first_rung, notes, form,
-                     neighbours=_neighbour_densities(mol, neighbours, notes) if run_search else (),
+    spent: list[int] = []
+    starts = (_neighbour_densities(mol, neighbours, notes)
+              + _neighbour_spin_starts(mol, level, scf_grid, neighbour_spins, notes, spent)) if run_search else ()
+    outcome = search(fields, spin2s, dm0, cycle_cap_first_rung, notes, form, neighbours=starts,
                      d_start=_d_start(mol, d_target) if d_target is not None and run_search else None,
                      run_search=run_search)
+    if spent:
+        notes.append(f"neighbour spin states converged at this geometry as starts: {sum(spent)} cycles")
+        outcome.cycles += sum(spent)
     run = finish_on_grid(outcome.winner.run, level.grid_level)
     if chkfile is not None and run.mf.mo_coeff is not None:
         from pyscf.scf import chkfile as chk
@@ -402,7 +428,7 @@ def _calculate(atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung
 
 def run_scf(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=None, threads: int = 1,
             cycle_cap_first_rung: int | None = None, chkfile=None, form: str | None = None,
-            neighbour_guesses=(), d_target=None, search_starts: bool = True) -> ScfResult:
+            neighbour_guesses=(), d_target=None, search_starts: bool = True, neighbour_spins=()) -> ScfResult:
     """One SCF single point at ``level``: the state search, singlet stability, D3(BJ), C-PCM.
 
     ``guess``: None (minao), a density array, a previous ScfResult or a PySCF chkfile path (projected
@@ -412,8 +438,9 @@ def run_scf(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=
     or ``"unrestricted"`` force one and run the default start alone (a relaxation keeps the form its first
     step found).
     ``neighbour_guesses``: converged results (or chkfiles, densities) of other spin states at the same
-    geometry, each one more start. ``d_target``: the intended d configuration (``dblock.DTarget``, e.g.
-    ``dblock.target_for``), one more start and the check of the converged occupation.
+    geometry, each one more start. ``neighbour_spins``: 2S values of neighbouring states to converge here
+    (default start only, when the search reaches them), each one more start. ``d_target``: the intended d
+    configuration (``dblock.DTarget``, e.g. ``dblock.target_for``), one more start and the check of the converged occupation.
     ``search_starts`` False: the default start only, no stability analysis of open shells.
     Never raises for non-convergence: the result has ``converged=False`` and a ``reason``.
     """
@@ -421,7 +448,7 @@ def run_scf(atoms, charge: int, spin2s: int, level: Level, guess=None, log_path=
     with _log_stream(log_path) as stream, pyscf_threads(threads):
         outcome, run, mol, dispersion, notes = _calculate(
             atoms, charge, spin2s, level, guess, stream, cycle_cap_first_rung, chkfile, form,
-            neighbour_guesses, d_target, search_starts)
+            neighbour_guesses, d_target, search_starts, neighbour_spins)
         return _result(outcome, run, mol, spin2s, dispersion, started, log_path, notes, d_target)
 
 

@@ -252,7 +252,7 @@ def _single_point(spec, atoms, cx, context: JobContext) -> dict:
 
     scf = run_scf(atoms, spec.charge, spec.spin2s, _level(spec.engine), guess=context.guess,
                   log_path=context.log_path, threads=context.threads, chkfile=context.chk_path,
-                  d_target=_d_target(cx, spec))
+                  d_target=_d_target(cx, spec), neighbour_spins=(neighbour_spin(spec.spin2s),))
     found = {"energy_hartree": scf.energy_hartree, "converged": scf.converged, **scf_summary(scf)}
     if not scf.converged:
         found.update(status="failed", reason=f"SCF not converged: {scf.reason}")
@@ -263,6 +263,12 @@ def _single_point(spec, atoms, cx, context: JobContext) -> dict:
     if scf.broken_symmetry:
         found.update(_projected_singlet(scf, atoms, spec, context))
     return found
+
+
+def neighbour_spin(spin2s: int) -> int:
+    """The spin state whose density seeds one start of this state's search: one pair lower (the SP-4 triplet
+    from the singlet's density), or the triplet/quartet for a singlet/doublet."""
+    return spin2s - 2 if spin2s >= 2 else spin2s + 2
 
 
 def _d_target(cx, spec):

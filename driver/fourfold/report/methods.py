@@ -577,9 +577,10 @@ def _grid_sentence(study, level) -> list:
 
 
 # What fourfold.compute.state_search does for every DFT single point, said once for the methods section.
-STATE_SEARCH = ("Each state was converged from more than one start: the default (or its relaxation's orbitals) and "
-                "a density built to the d configuration the ligand-field estimate gives that state; every "
-                "open-shell solution was tested for an internal (UKS → UKS) instability, which was followed "
+STATE_SEARCH = ("Each state was converged from several starts: the default (or its relaxation's orbitals), for "
+                "open shells a Hückel guess {cite}, the density of the neighbouring spin state converged at the same "
+                "geometry, and a density built to the d configuration the ligand-field estimate gives that state; "
+                "every open-shell solution was tested for an internal (UKS → UKS) instability, which was followed "
                 "downhill, and the lowest solution with the spin character of the state was kept")
 
 
@@ -605,8 +606,10 @@ def _scf_sentences(level, has_single_point: bool, comparison, state_search: str 
                   _cite("yamaguchi1988-projection"), " using the triplet at the same geometry. "]
     parts += ["States with ", Math(f"|⟨S²⟩ − S(S+1)| > {S2_TOLERANCE:g}", rf"$|\langle S^2\rangle - S(S+1)| > "
                                    rf"{S2_TOLERANCE:g}$"), " are flagged as spin-contaminated. "]
-    parts += [(state_search or STATE_SEARCH).strip().rstrip(".") + ". "]
-    return parts
+    if state_search:
+        return parts + [state_search.strip().rstrip(".") + ". "]
+    before, after = STATE_SEARCH.split("{cite}")
+    return parts + [before, _cite("lehtola2019-guess"), after + ". "]
 
 
 def _analysis_sentences(level, thermochemistry: str | None) -> list:
