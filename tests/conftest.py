@@ -8,8 +8,9 @@ import sys
 
 import pytest
 
-# The fault catalogue's shared fixtures (a finished study folder to break): tests/faults/faultkit.py.
-pytest_plugins = ["faults.faultkit"]
+# The fault catalogue's shared fixtures (a finished study folder to break): tests/faults/faultkit.py; the
+# PostgreSQL server and a fresh database per test: tests/pgserver.py.
+pytest_plugins = ["faults.faultkit", "pgserver"]
 
 
 def run_fourfold(*args, env=None, **kwargs) -> subprocess.CompletedProcess:

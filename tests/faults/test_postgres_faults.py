@@ -8,11 +8,9 @@ connection is lost the way a network or a server restart loses it, on real socke
 from __future__ import annotations
 
 import json
-import os
 import socket
 import threading
 import time
-import uuid
 from urllib.parse import urlsplit
 
 import pytest
@@ -22,30 +20,11 @@ PASSWORD = "Pa55-w0rd_never-shown"  # the server trusts every local user: any pa
 FAST_RETRIES = {"FOURFOLD_STORE_RETRY_S": "0.5,1,1,2"}  # the store's test hook: 4.5 s of tries instead of 31
 
 
-@pytest.fixture(scope="module")
-def postgres_server():
-    pytest.importorskip("psycopg2", reason="the postgres extra is not installed: pip install -e '.[test]'")
-    url = os.environ.get("FOURFOLD_TEST_POSTGRES")
-    if not url:
-        pytest.skip("FOURFOLD_TEST_POSTGRES is unset: .ci/run starts a PostgreSQL server and sets it")
-    return url
-
-
 @pytest.fixture()
-def database(postgres_server):
-    """A fresh database on the server for one test (host, port, name), dropped afterwards."""
-    import psycopg2
-
-    name = f"fourfold_faults_{uuid.uuid4().hex[:10]}"
-    admin = psycopg2.connect(postgres_server)
-    admin.autocommit = True
-    admin.cursor().execute(f"create database {name}")
-    parts = urlsplit(postgres_server)
-    try:
-        yield parts.hostname, parts.port, name, parts.username
-    finally:
-        admin.cursor().execute(f"drop database if exists {name} with (force)")
-        admin.close()
+def database(postgres_url):
+    """The fresh database of tests/pgserver.py as (host, port, name, user)."""
+    parts = urlsplit(postgres_url)
+    return parts.hostname, parts.port, parts.path.lstrip("/"), parts.username
 
 
 class Relay:
