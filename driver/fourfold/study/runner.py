@@ -12,6 +12,7 @@ from __future__ import annotations
 import fcntl
 import json
 import os
+import signal
 import socket
 import time
 from dataclasses import dataclass, field
@@ -24,7 +25,7 @@ from ..errors import InputError, describe_os_error
 from .jobs import Job, code_versions, expand
 from .process import complete_failure, exit_reason, failed_result, job_paths, local_job_main
 from .records import RecordShelf, write_text_atomic
-from .stopping import blocked, deferred
+from .stopping import blocked, deferred, stop_pending
 from .store import ResultStore, StoreError, store_records
 
 DEFAULT_TIMEOUT_S = 3600.0
@@ -236,6 +237,12 @@ class LocalPool:
                 item.process.join()
                 result = {"status": "failed", "reason": f"timeout after {self.timeout_s:.0f} s"}
             item.process.join(timeout=5)
+            if result is None and item.process.exitcode == -signal.SIGTERM and stop_pending():
+                # SIGTERM sent to the whole process group: the job was stopped with the driver, it did not
+                # fail; it stays unrecorded and runs again on resume
+                item.conn.close()
+                self._running.remove(item)
+                continue
             if result is None:
                 log_path = job_paths(self.out_dir, item.job)[0]
                 result = {"status": "failed", "reason": exit_reason(item.process.exitcode, log_path)}
