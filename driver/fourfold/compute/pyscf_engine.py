@@ -336,6 +336,7 @@ def _result(outcome: Outcome, run, mol, spin2s: int, dispersion: float, started:
 
 
 FORMS = (None, "restricted", "unrestricted")
+NEIGHBOUR_CONV_TOL_HARTREE = 1e-4  # a neighbour state converged as a start only (common practice, no source)
 
 
 def _neighbour_densities(mol, neighbours, notes: list[str]) -> list[tuple[str, object]]:
@@ -355,14 +356,17 @@ def _neighbour_densities(mol, neighbours, notes: list[str]) -> list[tuple[str, o
 def _neighbour_spin_starts(mol, level: Level, scf_grid: int, spins, notes: list[str], spent: list[int]):
     """(label, density callable) for each neighbouring spin state converged here, at this geometry.
 
-    The neighbour runs its default start only (RKS for a singlet), when the search reaches it; its cycles
-    go to ``spent``. Its α and β densities are the start (``keep_spin``), so one spin flips.
+    The neighbour runs its default start only (RKS for a singlet), when the search reaches it, converged to
+    ``NEIGHBOUR_CONV_TOL_HARTREE`` only (it is a start density; the start itself converges fully); its
+    cycles go to ``spent``. Its α and β densities are the start (``keep_spin``), so one spin flips.
     """
     def start(spin2s: int):
         other = mol.copy()
         other.spin = spin2s
         other.build(False, False)
-        run = ladder(MeanFields(other, level, scf_grid).get(spin2s == 0), None)
+        mf = MeanFields(other, level, scf_grid).get(spin2s == 0)
+        mf.conv_tol = max(mf.conv_tol, NEIGHBOUR_CONV_TOL_HARTREE)
+        run = ladder(mf, None)
         spent.append(run.cycles)
         if not run.converged:
             notes.append(f"neighbour 2S={spin2s} did not converge at this geometry: that start skipped")
